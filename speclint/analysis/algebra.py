@@ -1,0 +1,59 @@
+"""Exact loop algebra: transfer-function blocks as polynomials in s and the gain.
+
+Every block is kept as numerator and denominator exactly as written: two polynomials in
+the Laplace variable ``S`` and the gain ``K`` with rational coefficients (sympy ``Poly``
+over ``QQ`` with generators ``(S, K)``). Nothing is cancelled behind the user's back: a
+common factor between blocks, or inside one, stays in the characteristic polynomial, which
+is what internal stability needs.
+
+The gain is always the internal symbol ``K``; the name the spec gives it (``K``, ``Kp``,
+``gain``...) is kept in :attr:`LoopAlgebra.gain_symbol` for display only. A loop without a
+tunable gain simply has polynomials that do not involve ``K``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from fractions import Fraction
+
+import sympy
+
+from speclint.analysis.gainset import GainSet
+
+S = sympy.Symbol("s")
+K = sympy.Symbol("k")
+GENS = (S, K)
+
+
+def poly(expr: sympy.Expr | int) -> sympy.Poly:
+    """A polynomial in (S, K) over the rationals, built from trusted internal expressions."""
+    return sympy.Poly(expr, *GENS, domain=sympy.QQ)
+
+
+@dataclass(frozen=True, slots=True)
+class Ratio:
+    """A rational function num/den in (S, K), numerator and denominator as written."""
+
+    num: sympy.Poly
+    den: sympy.Poly
+
+    @staticmethod
+    def one() -> Ratio:
+        return Ratio(poly(1), poly(1))
+
+
+@dataclass(frozen=True, slots=True)
+class LoopAlgebra:
+    """The exact model of one loop, as the analysis stages receive it.
+
+    ``limits`` is the gain set the spec allows: (0, ∞) when it gives no limits, the
+    closed interval [lo, hi] when it does. ``nominal`` is None for a loop with no gain.
+    """
+
+    controller: Ratio
+    plant: Ratio
+    feedback: Ratio
+    delay: Fraction | None
+    nominal: Fraction | None
+    limits: GainSet
+    gain_symbol: str | None
