@@ -57,3 +57,37 @@ class LoopAlgebra:
     nominal: Fraction | None
     limits: GainSet
     gain_symbol: str | None
+
+
+def product(*blocks: Ratio) -> Ratio:
+    """Series connection; numerators and denominators multiply, nothing cancels."""
+    num, den = poly(1), poly(1)
+    for block in blocks:
+        num, den = num * block.num, den * block.den
+    return Ratio(num, den)
+
+
+def forward_path(loop: LoopAlgebra) -> Ratio:
+    """L = C·G (dead time excluded; it is carried in ``loop.delay``)."""
+    return product(loop.controller, loop.plant)
+
+
+def loop_transfer(loop: LoopAlgebra) -> Ratio:
+    """The open loop broken at the summing junction, C·G·H (dead time excluded)."""
+    return product(loop.controller, loop.plant, loop.feedback)
+
+
+def characteristic(loop: LoopAlgebra) -> sympy.Poly:
+    """Dc·Dg·Dh + Nc·Ng·Nh from the blocks as written (delay-free part).
+
+    Built from the blocks, not from a simplified L·H, so that a pole cancelled by a zero of
+    another block stays a closed-loop root: that is internal stability.
+    """
+    c, g, h = loop.controller, loop.plant, loop.feedback
+    return c.den * g.den * h.den + c.num * g.num * h.num
+
+
+def at_gain(p: sympy.Poly, k: Fraction) -> sympy.Poly:
+    """p with the gain fixed at k, as a polynomial in S alone over the rationals."""
+    value = sympy.Rational(k.numerator, k.denominator)
+    return sympy.Poly(p.as_expr().subs(K, value), S, domain=sympy.QQ)
