@@ -16,10 +16,12 @@ from __future__ import annotations
 from collections.abc import Iterable
 from dataclasses import dataclass
 from fractions import Fraction
+from itertools import pairwise
+from typing import TypeAlias
 
 import sympy
 
-Exact = sympy.Expr  # Rational, CRootOf, or +/-oo
+Exact: TypeAlias = sympy.Expr  # Rational, CRootOf, or +/-oo
 
 ZERO = sympy.Integer(0)
 INF = sympy.oo
@@ -238,7 +240,7 @@ def where_sign(poly: sympy.Poly, positive: bool, closed: bool) -> GainSet:
     roots = _distinct_real_roots(poly)
     ends = [-INF, *roots, INF]
     pieces: list[Interval] = []
-    for lo, hi in zip(ends, ends[1:], strict=False):
+    for lo, hi in pairwise(ends):
         value = poly.eval(rational_between(lo, hi))
         if (value > 0) == positive:
             pieces.append(Interval(lo, hi, closed and lo != -INF, closed and hi is not INF))

@@ -1,0 +1,3 @@
+from speclint.cli import entry
+
+entry()

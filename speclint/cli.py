@@ -1,0 +1,204 @@
+"""Command line: ``speclint check``, ``speclint rules``, ``speclint schema``.
+
+``main(argv, stdout, stderr) -> int`` does all the work and never exits, so tests call it
+directly; exit codes are decided in one place:
+
+* 0: no finding at or above the failing severity;
+* 1: findings at or above it;
+* 2: a usage or configuration error, or an internal error (with a bug-report message).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+from pathlib import Path
+from typing import NoReturn, TextIO
+
+from speclint import __version__
+from speclint.discover import ConfigError, find_config, parse_severity
+from speclint.findings import Severity
+from speclint.report import REPORTERS, Settings
+from speclint.rules import RULES
+
+EXIT_CLEAN, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+
+
+class UsageError(Exception):
+    """A command line that cannot be carried out."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> NoReturn:
+        raise UsageError(f"{self.prog}: {message}")
+
+    def exit(self, status: int = 0, message: str | None = None) -> NoReturn:
+        if message:
+            raise UsageError(message.strip())
+        raise _Done(status)
+
+
+class _Done(Exception):
+    def __init__(self, status: int) -> None:
+        self.status = status
+
+
+def _parser(stdout: TextIO) -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="speclint",
+        description="Check feedback-loop requirement specs: structure, exact loop figures, verdicts, trace.",
+    )
+    parser.add_argument("--version", action="version", version=f"speclint {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    check = sub.add_parser("check", help="check spec files and report what each loop achieves")
+    check.add_argument(
+        "paths", nargs="*", help="spec files or folders (default: the configured paths)"
+    )
+    check.add_argument(
+        "--format", choices=sorted(REPORTERS), default="console", help="report format"
+    )
+    check.add_argument(
+        "--output", "-o", metavar="FILE", help="write the report to FILE instead of standard output"
+    )
+    check.add_argument("--config", metavar="FILE", help="use this speclint.toml or pyproject.toml")
+    check.add_argument(
+        "--fail-on", choices=[s.value for s in Severity], help="lowest severity that fails the run"
+    )
+    check.add_argument(
+        "--color",
+        choices=["auto", "always", "never"],
+        default="auto",
+        help="colour in the console report",
+    )
+    check.add_argument("--no-cache", action="store_true", help="analyse every loop afresh")
+
+    rules = sub.add_parser("rules", help="list the finding codes")
+    rules.add_argument("--format", choices=["text", "json"], default="text")
+
+    schema = sub.add_parser("schema", help="print the spec JSON Schema (or its path)")
+    schema.add_argument(
+        "--path", action="store_true", help="print where the schema file is instead"
+    )
+    parser.set_defaults(stdout=stdout)
+    return parser
+
+
+def main(
+    argv: list[str] | None = None, stdout: TextIO | None = None, stderr: TextIO | None = None
+) -> int:
+    """Run speclint with `argv`; return the exit code."""
+    stdout = stdout or sys.stdout
+    stderr = stderr or sys.stderr
+    try:
+        args, extra = _parser(stdout).parse_known_args(argv)
+        # Paths may come after options (`check --format json a.yaml b.yaml`): argparse
+        # leaves the later ones over; anything else left over is a real mistake.
+        stray = [e for e in extra if e.startswith("-") or args.command != "check"]
+        if stray:
+            raise UsageError(f"unrecognised arguments: {' '.join(stray)}")
+        if extra:
+            args.paths = [*args.paths, *extra]
+        if args.command == "check":
+            return _check(args, stdout)
+        if args.command == "rules":
+            return _rules(args, stdout)
+        if args.command == "schema":
+            return _schema(args, stdout)
+        _parser(stdout).print_help(stdout)
+        return EXIT_USAGE
+    except _Done as done:
+        return done.status
+    except (UsageError, ConfigError) as exc:
+        print(f"speclint: {exc}", file=stderr)
+        return EXIT_USAGE
+    except Exception as exc:  # our bug: say so plainly, without a traceback
+        print(
+            f"speclint: internal error ({type(exc).__name__}: {exc}); "
+            "please report it as a bug with the command line and the spec files involved",
+            file=stderr,
+        )
+        return EXIT_USAGE
+
+
+def entry() -> NoReturn:
+    """Console-script entry point."""
+    sys.exit(main())
+
+
+def _check(args: argparse.Namespace, stdout: TextIO) -> int:
+    from speclint.pipeline import Options, run
+
+    cwd = Path.cwd()
+    config = find_config(cwd, Path(args.config) if args.config else None)
+    fail_on = parse_severity(args.fail_on, "--fail-on") if args.fail_on else config.fail_on
+    result = run(config, args.paths, cwd, Options(use_cache=not args.no_cache))
+    to_terminal = args.output is None and stdout.isatty()
+    color = args.color == "always" or (
+        args.color == "auto" and to_terminal and "NO_COLOR" not in os.environ
+    )
+    width = _terminal_width() if to_terminal else None
+    text = REPORTERS[args.format](result, Settings(__version__, color=color, width=width))
+    if args.output:
+        write_atomically(Path(args.output), text)
+    else:
+        stdout.write(text)
+    failing = any(f.severity.rank >= fail_on.rank for f in result.findings)
+    return EXIT_FINDINGS if failing else EXIT_CLEAN
+
+
+def _terminal_width() -> int:
+    try:
+        return os.get_terminal_size().columns
+    except OSError:
+        return 100
+
+
+def write_atomically(path: Path, text: str) -> None:
+    """Write `text` to `path` through a temporary file in the same folder and a rename, so a
+    reader never sees half a report and a failed write leaves the old file whole."""
+    folder = path.parent if str(path.parent) else Path()
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    except OSError as exc:
+        raise UsageError(f"cannot write {path}: {exc.strerror}") from None
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="") as handle:
+            handle.write(text)
+        Path(tmp).replace(path)
+    except OSError as exc:
+        Path(tmp).unlink(missing_ok=True)
+        raise UsageError(f"cannot write {path}: {exc.strerror}") from None
+
+
+def _rules(args: argparse.Namespace, stdout: TextIO) -> int:
+    if args.format == "json":
+        import json
+
+        rows = [
+            {"code": r.code, "name": r.name, "severity": r.severity.value, "summary": r.summary}
+            for r in RULES.values()
+        ]
+        stdout.write(json.dumps(rows, indent=2) + "\n")
+        return EXIT_CLEAN
+    width = max(len(r.name) for r in RULES.values())
+    for rule in RULES.values():
+        stdout.write(
+            f"{rule.code}  {rule.name:<{width}}  {rule.severity.value:<7}  {rule.summary}\n"
+        )
+    return EXIT_CLEAN
+
+
+def _schema(args: argparse.Namespace, stdout: TextIO) -> int:
+    from importlib.resources import as_file, files
+
+    from speclint.validate import SPEC_SCHEMA, schema_text
+
+    if args.path:
+        with as_file(files("speclint") / "schemas" / SPEC_SCHEMA) as path:
+            stdout.write(f"{path}\n")
+        return EXIT_CLEAN
+    stdout.write(schema_text())
+    return EXIT_CLEAN

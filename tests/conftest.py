@@ -1,0 +1,58 @@
+"""Shared test harness: run the whole pipeline on YAML text and look at what it found."""
+
+from __future__ import annotations
+
+import io
+import json
+import textwrap
+from pathlib import Path
+from typing import Any
+
+import pytest
+
+from speclint.cli import main
+
+REPO = Path(__file__).resolve().parent.parent
+
+
+class Run:
+    """One `speclint check` on files written into a temporary folder."""
+
+    def __init__(self, code: int, out: str, err: str) -> None:
+        self.code, self.out, self.err = code, out, err
+
+    @property
+    def report(self) -> dict[str, Any]:
+        return json.loads(self.out)
+
+    @property
+    def codes(self) -> list[str]:
+        return [f["rule"] for f in self.report["findings"]]
+
+
+@pytest.fixture
+def speclint(tmp_path: Path, monkeypatch: pytest.MonkeyPatch):
+    """Call as speclint({"a.yaml": text, ...}, *extra_args): runs check in tmp_path, JSON out."""
+    monkeypatch.chdir(tmp_path)
+
+    def run(files: dict[str, str | bytes], *args: str, fmt: str = "json") -> Run:
+        for name, content in files.items():
+            path = tmp_path / name
+            path.parent.mkdir(parents=True, exist_ok=True)
+            if isinstance(content, bytes):
+                path.write_bytes(content)
+            else:
+                path.write_text(textwrap.dedent(content), encoding="utf-8")
+        out, err = io.StringIO(), io.StringIO()
+        code = main(["check", *files, "--no-cache", "--format", fmt, *args], out, err)
+        return Run(code, out.getvalue(), err.getvalue())
+
+    return run
+
+
+def findings_of(run: Run) -> str:
+    """The findings, one per line, for assertion messages."""
+    return "\n".join(
+        f"{f['path']}:{f['line']}:{f['column']}: {f['rule']} {f['message']}"
+        for f in run.report["findings"]
+    )
