@@ -74,6 +74,12 @@ def _parser(stdout: TextIO) -> argparse.ArgumentParser:
         help="colour in the console report",
     )
     check.add_argument("--no-cache", action="store_true", help="analyse every loop afresh")
+    check.add_argument(
+        "--focus",
+        action="store_true",
+        help="check the whole configured spec set but report only on the given files "
+        "(and on what their changes reach in other files); for pre-commit hooks",
+    )
 
     rules = sub.add_parser("rules", help="list the finding codes")
     rules.add_argument("--format", choices=["text", "json"], default="text")
@@ -134,13 +140,23 @@ def _check(args: argparse.Namespace, stdout: TextIO) -> int:
     cwd = Path.cwd()
     config = find_config(cwd, Path(args.config) if args.config else None)
     fail_on = parse_severity(args.fail_on, "--fail-on") if args.fail_on else config.fail_on
-    result = run(config, args.paths, cwd, Options(use_cache=not args.no_cache))
+    options = Options(use_cache=not args.no_cache)
+    if args.focus:
+        from speclint.focus import narrow, selector
+
+        if not args.paths:
+            raise UsageError("--focus needs the files to report on")
+        chosen = selector(args.paths, cwd)
+        result = narrow(run(config, [], cwd, options), chosen)
+    else:
+        result = run(config, args.paths, cwd, options)
     to_terminal = args.output is None and stdout.isatty()
     color = args.color == "always" or (
         args.color == "auto" and to_terminal and "NO_COLOR" not in os.environ
     )
     width = _terminal_width() if to_terminal else None
-    text = REPORTERS[args.format](result, Settings(__version__, color=color, width=width))
+    settings = Settings(__version__, color=color, width=width, fail_on=fail_on)
+    text = REPORTERS[args.format](result, settings)
     if args.output:
         write_atomically(Path(args.output), text)
     else:

@@ -10,6 +10,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Protocol
 
+from speclint.findings import Severity
 from speclint.results import RunResult
 
 CAUTION = (
@@ -25,6 +26,8 @@ class Settings:
     version: str
     color: bool = False
     width: int | None = None  # None: no wrapping at all (piped output)
+    # The lowest severity that fails the run: formats with a pass/fail outcome (JUnit) follow it.
+    fail_on: Severity = Severity.ERROR
 
 
 class Reporter(Protocol):
@@ -43,8 +46,29 @@ def _json(result: RunResult, settings: Settings) -> str:
     return json_report.render(result, settings)
 
 
+def _sarif(result: RunResult, settings: Settings) -> str:
+    from speclint.report import sarif
+
+    return sarif.render(result, settings)
+
+
+def _junit(result: RunResult, settings: Settings) -> str:
+    from speclint.report import junit
+
+    return junit.render(result, settings)
+
+
+def _github(result: RunResult, settings: Settings) -> str:
+    from speclint.report import github
+
+    return github.report(result, settings)
+
+
 # Each reporter imports its module only when chosen: a run pays for one format.
 REPORTERS: dict[str, Callable[[RunResult, Settings], str]] = {
     "console": _console,
     "json": _json,
+    "sarif": _sarif,
+    "junit": _junit,
+    "github": _github,
 }
