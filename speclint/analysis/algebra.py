@@ -117,9 +117,10 @@ def improper_parts(loop: LoopAlgebra, gain: Fraction | None = None) -> tuple[str
     """The parts of a loop with more zeros than poles, by name, in a fixed order.
 
     Names: "controller", "plant", "feedback", "loop" (C·G·H), "equivalent forward path"
-    (Ge, which can gain zeros over poles when 1 + L·(H − 1) loses its top term, i.e. the
-    closed loop is ill-posed at high frequency). With ``gain`` the degrees are those at that
-    gain; without, those of a generic gain (a leading coefficient vanishing only at an
+    (Ge; it can have more zeros than poles while every block and the loop are proper, when
+    L(∞)·(H(∞) − 1) = −1; the error figures stay valid then, so the caller may report that
+    entry as a note rather than refuse the model). With ``gain`` the degrees are those at
+    that gain; without, those of a generic gain (a leading coefficient vanishing only at an
     isolated gain is not seen then).
     """
     parts = {
