@@ -61,6 +61,7 @@ import functools
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
+from typing import Any
 
 import sympy
 
@@ -109,7 +110,12 @@ class SteadyState:
 
 # -- series at s = 0 ------------------------------------------------------------------------
 
-_Coefficients = tuple[sympy.Poly, ...]  # of s^0, s^1, ...; each a polynomial in K
+# Coefficients of s^0, s^1, ... are polynomials in the gain, kept as elements of sympy's
+# sparse polynomial ring: the same exact arithmetic as Poly at a fraction of the cost. They
+# become Poly only where root finding needs it (gain sets).
+_RING, _ = sympy.ring([K], sympy.QQ)
+_Gain = Any  # an element of _RING (sympy.polys.rings.PolyElement; sympy ships no types)
+_Coefficients = tuple[_Gain, ...]
 
 
 @dataclass(frozen=True, slots=True)
@@ -120,11 +126,11 @@ class _Quasi:
     b: _Coefficients
     delay: Fraction | None
 
-    def at(self, value: sympy.Rational) -> _Quasi:
+    def at(self, value: Any) -> _Quasi:
         return _Quasi(_evaluate(self.a, value), _evaluate(self.b, value), self.delay)
 
-    def coefficient(self, n: int, delay_terms: Sequence[sympy.Rational]) -> sympy.Poly:
-        total = self.a[n] if n < len(self.a) else _ZERO_K
+    def coefficient(self, n: int, delay_terms: Sequence[Any]) -> _Gain:
+        total = self.a[n] if n < len(self.a) else _RING.zero
         for i in range(min(n, len(self.b) - 1) + 1):
             weight = delay_terms[n - i] if n - i < len(delay_terms) else 0
             if weight:
@@ -138,39 +144,51 @@ class _Quasi:
         return max(len(self.a), len(self.b)) - 1
 
 
-_ZERO_K = sympy.Poly(0, K, domain=sympy.QQ)
-_ZeroTest = Callable[[sympy.Poly], bool]
+_ZeroTest = Callable[[_Gain], bool]
 
 
-def _generic_zero(p: sympy.Poly) -> bool:
-    return bool(p.is_zero)
+def _generic_zero(p: _Gain) -> bool:
+    return not p
+
+
+def _qq(x: Fraction) -> Any:
+    return sympy.QQ(x.numerator, x.denominator)
 
 
 def _by_power(p: sympy.Poly) -> _Coefficients:
     if p.is_zero:
         return ()
-    rows: list[dict[tuple[int], sympy.Expr]] = [{} for _ in range(int(p.degree(S)) + 1)]
-    for (i, j), c in p.as_dict().items():
+    rows: list[dict[tuple[int], Any]] = [{} for _ in range(int(p.degree(S)) + 1)]
+    for (i, j), c in p.as_dict(native=True).items():
         rows[i][(j,)] = c
-    return tuple(sympy.Poly.from_dict(row, K, domain=sympy.QQ) if row else _ZERO_K for row in rows)
+    return tuple(_RING.from_dict(row) if row else _RING.zero for row in rows)
 
 
-def _evaluate(coefficients: _Coefficients, value: sympy.Rational) -> _Coefficients:
-    return tuple(sympy.Poly(c.eval(value), K, domain=sympy.QQ) for c in coefficients)
+def _evaluate(coefficients: _Coefficients, value: Any) -> _Coefficients:
+    return tuple(_RING.ground_new(c.evaluate(_RING.gens[0], value)) for c in coefficients)
+
+
+def _to_poly(p: _Gain) -> sympy.Poly:
+    return sympy.Poly.from_dict(dict(p), K, domain=sympy.QQ)
+
+
+def _from_poly(p: sympy.Poly) -> _Gain:
+    return _RING.from_dict(p.as_dict(native=True))
 
 
 @functools.lru_cache(maxsize=64)
-def _delay_terms(delay: Fraction | None, count: int) -> tuple[sympy.Rational, ...]:
+def _delay_terms(delay: Fraction | None, count: int) -> tuple[Any, ...]:
+    one = sympy.QQ(1)
     if not delay:
-        return (sympy.Integer(1),)
-    minus_t = sympy.Rational(-delay.numerator, delay.denominator)
-    terms = [sympy.Integer(1)]
+        return (one,)
+    minus_t = -_qq(delay)
+    terms = [one]
     for n in range(1, count):
         terms.append(terms[-1] * minus_t / n)
     return tuple(terms)
 
 
-def _lowest(f: _Quasi, is_zero: _ZeroTest) -> tuple[int, sympy.Poly] | None:
+def _lowest(f: _Quasi, is_zero: _ZeroTest) -> tuple[int, _Gain] | None:
     """Order at s = 0 and lowest coefficient of f; None when f vanishes identically."""
     limit = f.search_limit()
     terms = _delay_terms(f.delay, limit + 1)
@@ -188,8 +206,8 @@ class _Limit:
     """lim s→0 of s^shift·F1/F2: "zero", "inf", or "ratio" a/b of two polynomials in K."""
 
     kind: str
-    a: sympy.Poly = _ZERO_K
-    b: sympy.Poly = _ZERO_K
+    a: _Gain = _RING.zero
+    b: _Gain = _RING.zero
 
 
 def _limit(f1: _Quasi, f2: _Quasi, shift: int, is_zero: _ZeroTest) -> _Limit:
@@ -217,7 +235,7 @@ class _Series:
     feedback_den: _Quasi
     controller_den: _Quasi
 
-    def at(self, value: sympy.Rational) -> _Series:
+    def at(self, value: Any) -> _Series:
         return _Series(
             self.nge.at(value),
             self.dge.at(value),
@@ -253,7 +271,7 @@ def _nominal_series(loop: LoopAlgebra) -> _Series:
         if _involves_gain(series):
             raise ValueError("the loop's blocks hold the gain but the loop has no nominal gain")
         return series
-    return series.at(exact(loop.nominal))
+    return series.at(_qq(loop.nominal))
 
 
 def _involves_gain(series: _Series) -> bool:
@@ -272,15 +290,15 @@ def _type(series: _Series, is_zero: _ZeroTest) -> int:
 
 
 def _value(limit: _Limit) -> sympy.Expr:
+    """The limit as a sympy number, or an expression in K when the coefficients hold it."""
     if limit.kind == "zero":
         return ZERO
     if limit.kind == "inf":
         return INF
-    return limit.a.as_expr() / limit.b.as_expr()
-
-
-def _expression(limit: _Limit) -> sympy.Expr:
-    return sympy.cancel(_value(limit))
+    num, den = limit.a.cancel(limit.b)
+    if den.is_ground:
+        return num.as_expr() / sympy.QQ.to_sympy(den.LC)
+    return num.as_expr() / den.as_expr()
 
 
 # -- figures at the nominal gain ----------------------------------------------------------
@@ -296,9 +314,9 @@ def steady_state(loop: LoopAlgebra) -> SteadyState:
         kp=_value(_limit(nominal.nge, nominal.dge, 0, z)),
         kv=_value(_limit(nominal.nge, nominal.dge, 1, z)),
         ka=_value(_limit(nominal.nge, nominal.dge, 2, z)),
-        kp_expr=_expression(_limit(generic.nge, generic.dge, 0, z)),
-        kv_expr=_expression(_limit(generic.nge, generic.dge, 1, z)),
-        ka_expr=_expression(_limit(generic.nge, generic.dge, 2, z)),
+        kp_expr=_value(_limit(generic.nge, generic.dge, 0, z)),
+        kv_expr=_value(_limit(generic.nge, generic.dge, 1, z)),
+        ka_expr=_value(_limit(generic.nge, generic.dge, 2, z)),
         step_error=_value(_limit(nominal.dge, nominal.char, 0, z)),
         ramp_error=_value(_limit(nominal.dge, nominal.char, -1, z)),
         parabola_error=_value(_limit(nominal.dge, nominal.char, -2, z)),
@@ -333,7 +351,7 @@ def _scaled(unit: sympy.Expr, magnitude: Fraction) -> sympy.Expr:
 
 # -- gain sets ------------------------------------------------------------------------------
 
-_Test = Callable[[sympy.Poly, sympy.Poly], sympy.Poly]
+_Test = Callable[[_Gain, _Gain], _Gain]
 
 
 def tracking_gains(
@@ -344,7 +362,7 @@ def tracking_gains(
     _check_limit(max_error)
     if magnitude == 0:
         return GainSet.positive()
-    r, m = exact(magnitude), exact(max_error)
+    r, m = _qq(magnitude), _qq(max_error)
     series = _series(loop)
     return _gain_set(
         series.dge,
@@ -360,7 +378,7 @@ def constant_gains(loop: LoopAlgebra, which: str, minimum: Fraction) -> GainSet:
     """Gains K > 0 where Kp, Kv or Ka (``which``: "kp", "kv", "ka") is ≥ minimum."""
     if which not in CONSTANTS:
         raise ValueError(f"unknown error constant {which!r}; expected one of {CONSTANTS}")
-    m = exact(minimum)
+    m = _qq(minimum)
     series = _series(loop)
     return _gain_set(
         series.nge,
@@ -377,7 +395,7 @@ def disturbance_gains(loop: LoopAlgebra, magnitude: Fraction, max_error: Fractio
     _check_limit(max_error)
     if magnitude == 0:
         return GainSet.positive()
-    d, m = exact(magnitude), exact(max_error)
+    d, m = _qq(magnitude), _qq(max_error)
     series = _series(loop)
     return _gain_set(
         series.dist,
@@ -413,7 +431,7 @@ def _gain_set(
     generic = _limit(f1, f2, shift, _generic_zero)
     positive = GainSet.positive()
     if generic.kind == "ratio":
-        result = where_sign(test(generic.a, generic.b), positive=True, closed=True)
+        result = where_sign(_to_poly(test(generic.a, generic.b)), positive=True, closed=True)
         result = result.intersect(positive)
     else:
         holds = holds_at_zero if generic.kind == "zero" else holds_at_inf
@@ -441,7 +459,7 @@ def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, sympy.Poly,
     if special.degree() <= 0:
         return []
     points = []
-    for factor, _ in special.factor_list()[1]:
+    for factor, _ in _to_poly(special).factor_list()[1]:
         for index, root in enumerate(factor.real_roots()):
             if less(ZERO, root):
                 points.append((root, factor, index))
@@ -450,11 +468,13 @@ def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, sympy.Poly,
 
 def _divisible_by(factor: sympy.Poly) -> _ZeroTest:
     # factor is irreducible over Q, so p(root) = 0 exactly when factor divides p.
-    return lambda p: bool(p.rem(factor).is_zero)
+    divisor = _from_poly(factor)
+    return lambda p: not p % divisor
 
 
-def _sign_at(p: sympy.Poly, factor: sympy.Poly, index: int) -> int:
-    """Exact sign of p at the index-th real root of the irreducible ``factor``."""
+def _sign_at(gain_poly: _Gain, factor: sympy.Poly, index: int) -> int:
+    """Exact sign of a polynomial at the index-th real root of the irreducible ``factor``."""
+    p = _to_poly(gain_poly)
     if p.rem(factor).is_zero:
         return 0
     if factor.degree() == 1:
@@ -545,7 +565,7 @@ def why_disturbance_unreachable(
 
 
 def _ratio(limit: _Limit) -> sympy.Expr:
-    return sympy.cancel(limit.a.as_expr() / limit.b.as_expr())
+    return _value(limit)
 
 
 def _too_large(what: str, value: sympy.Expr, limit: Fraction) -> str:
