@@ -186,8 +186,10 @@ def _check_characters(text: str) -> None:
                 raise _Refused(ExprError("limit", at, message))
         elif ch in ")]}":
             depth -= 1
+        if ch.isspace():
+            continue  # no-break and other Unicode spaces pasted from documents read as blanks
         if ch.isascii():
-            if not ch.isprintable() and ch not in " \t\r\n\f\v":
+            if not ch.isprintable():
                 message = f"control character U+{ord(ch):04X} in the expression"
                 raise _Refused(ExprError("syntax", at, message))
             continue

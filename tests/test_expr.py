@@ -93,6 +93,11 @@ def test_whitespace_and_newlines() -> None:
     assert read("  s\n + 1\t") == read("s + 1")
 
 
+def test_unicode_spaces_read_as_blanks() -> None:
+    assert read("K*(s\u00a0+ 12)/s") == read("K*(s + 12)/s")
+    assert refused("s +\u00a0x").offset == 4
+
+
 def test_gain_symbol_is_the_internal_k_whatever_its_name() -> None:
     assert read("Kp*s", gain="Kp").num == poly(K * S)
     assert read("gain/s", gain="gain").num == poly(K)

@@ -305,7 +305,10 @@ def _value(limit: _Limit) -> sympy.Expr:
 
 
 def steady_state(loop: LoopAlgebra) -> SteadyState:
-    """Type, Kp, Kv, Ka and unit errors at the nominal gain, plus Kp, Kv, Ka in the gain."""
+    """Type, Kp, Kv, Ka and unit errors at the nominal gain, plus Kp, Kv, Ka in the gain.
+
+    Raises ValueError when the blocks hold the gain but the loop has no nominal value.
+    """
     generic = _series(loop)
     nominal = _nominal_series(loop)
     z = _generic_zero
