@@ -91,3 +91,54 @@ def at_gain(p: sympy.Poly, k: Fraction) -> sympy.Poly:
     """p with the gain fixed at k, as a polynomial in S alone over the rationals."""
     value = sympy.Rational(k.numerator, k.denominator)
     return sympy.Poly(p.as_expr().subs(K, value), S, domain=sympy.QQ)
+
+
+def degree_in_s(p: sympy.Poly) -> int:
+    """Degree in s of a polynomial in (S, K), the gain left free; -1 for the zero polynomial."""
+    return -1 if p.is_zero else int(p.degree(S))
+
+
+def relative_degree(block: Ratio, gain: Fraction | None = None) -> int:
+    """Poles minus zeros of a block (at the given gain, else for a generic gain)."""
+    num, den = block.num, block.den
+    if gain is not None:
+        num, den = at_gain(num, gain), at_gain(den, gain)
+    return degree_in_s(den) - degree_in_s(num)
+
+
+def is_proper(item: Ratio | LoopAlgebra, gain: Fraction | None = None) -> bool:
+    """True when no block, and not the loop, has more zeros than poles (see improper_parts)."""
+    if isinstance(item, Ratio):
+        return relative_degree(item, gain) >= 0
+    return not improper_parts(item, gain)
+
+
+def improper_parts(loop: LoopAlgebra, gain: Fraction | None = None) -> tuple[str, ...]:
+    """The parts of a loop with more zeros than poles, by name, in a fixed order.
+
+    Names: "controller", "plant", "feedback", "loop" (C·G·H), "equivalent forward path"
+    (Ge; it can have more zeros than poles while every block and the loop are proper, when
+    L(∞)·(H(∞) − 1) = −1; the error figures stay valid then, so the caller may report that
+    entry as a note rather than refuse the model). With ``gain`` the degrees are those at
+    that gain; without, those of a generic gain (a leading coefficient vanishing only at an
+    isolated gain is not seen then).
+    """
+    parts = {
+        "controller": loop.controller,
+        "plant": loop.plant,
+        "feedback": loop.feedback,
+        "loop": loop_transfer(loop),
+        "equivalent forward path": unity_equivalent(loop),
+    }
+    return tuple(name for name, block in parts.items() if relative_degree(block, gain) < 0)
+
+
+def unity_equivalent(loop: LoopAlgebra) -> Ratio:
+    """Ge = L/(1 + L·(H − 1)), L = C·G: the unity-feedback forward path with the same e = r − y.
+
+    As polynomials: Nc·Ng·Dh / (Dc·Dg·Dh + Nc·Ng·(Nh − Dh)), nothing cancelled (dead time
+    excluded; see speclint.analysis.steady for how it enters).
+    """
+    c, g, h = loop.controller, loop.plant, loop.feedback
+    forward = c.num * g.num
+    return Ratio(forward * h.den, c.den * g.den * h.den + forward * (h.num - h.den))

@@ -1,0 +1,657 @@
+"""Steady-state figures of one loop: system type, Kp, Kv, Ka, tracking and disturbance errors.
+
+Definitions (common practice). The tracked error is e = r − y. With forward path L = C·G,
+feedback path H and dead time T in the forward path (P = e^{−sT}), the equivalent
+unity-feedback forward path is Ge = L·P/(1 + L·P·(H − 1)), so that E/R = 1/(1 + Ge). The
+system type is the number of poles of Ge at s = 0, Kp = lim Ge, Kv = lim s·Ge,
+Ka = lim s²·Ge (s → 0), and the final values of e for the references R/s, R/s², R/s³ are
+R/(1 + Kp), R/Kv, R/Ka. They are computed here as final values of e itself,
+lim s·R(s)·E(s), which agree with those formulas whenever Ge exists. An infinite constant is
+reported as +oo whatever the sign of Ge near s = 0 (the matching error is 0 either way); an
+unbounded error is oo.
+
+How. Every figure is a limit at s = 0 of a ratio of two functions F = A(s) + B(s)·P(s)
+(polynomials A, B in s whose coefficients are polynomials in the gain). The limit needs only
+the order of F at s = 0 and its lowest coefficient, found by expanding P exactly,
+P = Σ (−sT)^n/n!. No symbolic limit is taken. The expansion stops, at the latest, at order
+deg A + deg B + 1: a nonzero A + B·e^{−sT} (T > 0) vanishes at s = 0 to no higher order.
+Proof: multiply by e^{sT} and differentiate deg B + 1 times; B disappears and A·e^{sT} turns
+into Ã·e^{sT} with deg Ã = deg A and Ã ≠ 0 (each derivative maps A to A' + T·A), whose order
+at 0 is at most deg A, and differentiating q + 1 times lowers an order by at most q + 1.
+Dead time matters only through B = Nc·Ng·(Nh − Dh), i.e. with a non-unity feedback path,
+and only when the low-order coefficients of A + B cancel; it then changes Kv or the type.
+
+Values at the nominal gain substitute the gain into the coefficients first and take the
+limit after, so a nominal gain where a generic formula would divide by zero is exact. The
+expressions in the gain (``kp_expr`` ...) are the generic ones, for display.
+
+Gain sets are over all real K > 0; stability and the spec's limits are the caller's to
+intersect. They are exact: boundaries are roots of polynomials in K, a limit met with
+equality counts as met, and the finitely many gains where a lowest coefficient vanishes
+(where the type or the formula changes) are decided one by one.
+
+Reasons for an empty set (an interface; {…} is filled in, numbers to 6 significant digits):
+
+- ``type {n} loop: the {reference} error is infinite for every gain; add an integrator``
+  (``add {m} integrators`` when more are missing)
+- ``type {n} loop: the {reference} error is infinite for every gain; the feedback path's DC
+  gain is {h}, not 1: integrators in the loop cannot remove it``
+- ``the {reference} error is {value} for every gain, more than the allowed {max}``
+  (``larger in size than the allowed {max}`` when the value is negative)
+- ``no gain brings the {reference} error within {max}: it is at least {bound} for every gain``
+- ``Kp is 0 for every gain: the equivalent forward path has a zero at s = 0``
+- ``type {n} loop: {Kv|Ka} is 0 for every gain; add an integrator`` (or ``add {m} integrators``)
+- ``{Kp|Kv|Ka} is {value} for every gain, less than the required {min}``
+- ``no gain makes {Kp|Kv|Ka} reach {min}: it is at most {bound} for every gain``
+- ``the output deviation after a step disturbance at the plant input grows without bound
+  for every gain``
+- ``the output deviation after a step disturbance at the plant input is {value} for every
+  gain, more than the allowed {max}`` (or ``larger in size than``, as above)
+- ``no gain brings the output deviation after a step disturbance at the plant input within
+  {max}: it is at least {bound} for every gain``
+
+Tracking and constant reasons of a finite value get ``; the feedback path's DC gain is {h},
+not 1`` appended when it is; a disturbance reason gets ``; an integrator in the controller
+removes it`` when the controller has none.
+"""
+
+from __future__ import annotations
+
+import functools
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Any
+
+import sympy
+
+from speclint.analysis.algebra import K, LoopAlgebra, S
+from speclint.analysis.gainset import (
+    INF,
+    ZERO,
+    GainSet,
+    Interval,
+    exact,
+    format_number,
+    less,
+    where_sign,
+)
+
+REFERENCES = ("step", "ramp", "parabola")
+CONSTANTS = ("kp", "kv", "ka")
+DEGENERATE_TYPE = 3
+
+_ORDER = {"step": 0, "ramp": 1, "parabola": 2, "kp": 0, "kv": 1, "ka": 2}
+_DISPLAY = {"kp": "Kp", "kv": "Kv", "ka": "Ka"}
+
+
+@dataclass(frozen=True, slots=True)
+class SteadyState:
+    """Steady-state figures of the equivalent unity-feedback forward path Ge.
+
+    ``type``, ``kp``, ``kv``, ``ka`` and the unit errors are at the nominal gain (exact:
+    Rational, 0 or oo); the ``*_expr`` fields are the same constants as expressions in the
+    gain symbol ``algebra.K``. The unit errors are final values of e = r − y for R = 1.
+    When 1 + L·(H − 1) vanishes identically the output equals the reference exactly: Ge
+    does not exist, ``type`` is reported as DEGENERATE_TYPE and every error is 0.
+    """
+
+    type: int
+    kp: sympy.Expr
+    kv: sympy.Expr
+    ka: sympy.Expr
+    kp_expr: sympy.Expr
+    kv_expr: sympy.Expr
+    ka_expr: sympy.Expr
+    step_error: sympy.Expr
+    ramp_error: sympy.Expr
+    parabola_error: sympy.Expr
+
+
+# -- series at s = 0 ------------------------------------------------------------------------
+
+# Coefficients of s^0, s^1, ... are polynomials in the gain, kept as elements of sympy's
+# sparse polynomial ring: the same exact arithmetic as Poly at a fraction of the cost. They
+# become Poly only where root finding needs it (gain sets).
+_RING, _ = sympy.ring([K], sympy.QQ)
+_Gain = Any  # an element of _RING (sympy.polys.rings.PolyElement; sympy ships no types)
+_Coefficients = tuple[_Gain, ...]
+
+
+@dataclass(frozen=True, slots=True)
+class _Quasi:
+    """A(s) + B(s)·e^{−sT} (T = 0 when ``delay`` is None), coefficients polynomials in K."""
+
+    a: _Coefficients
+    b: _Coefficients
+    delay: Fraction | None
+
+    def at(self, value: Any) -> _Quasi:
+        return _Quasi(_evaluate(self.a, value), _evaluate(self.b, value), self.delay)
+
+    def coefficient(self, n: int, delay_terms: Sequence[Any]) -> _Gain:
+        total = self.a[n] if n < len(self.a) else _RING.zero
+        for i in range(min(n, len(self.b) - 1) + 1):
+            weight = delay_terms[n - i] if n - i < len(delay_terms) else 0
+            if weight:
+                total = total + self.b[i] * weight
+        return total
+
+    def search_limit(self) -> int:
+        """The order by which a nonzero coefficient must have appeared (module docstring)."""
+        if self.delay and self.b:
+            return len(self.a) + len(self.b) - 1
+        return max(len(self.a), len(self.b)) - 1
+
+
+_ZeroTest = Callable[[_Gain], bool]
+
+
+def _generic_zero(p: _Gain) -> bool:
+    return not p
+
+
+def _qq(x: Fraction) -> Any:
+    return sympy.QQ(x.numerator, x.denominator)
+
+
+def _by_power(p: sympy.Poly) -> _Coefficients:
+    if p.is_zero:
+        return ()
+    rows: list[dict[tuple[int], Any]] = [{} for _ in range(int(p.degree(S)) + 1)]
+    for (i, j), c in p.as_dict(native=True).items():
+        rows[i][(j,)] = c
+    return tuple(_RING.from_dict(row) if row else _RING.zero for row in rows)
+
+
+def _evaluate(coefficients: _Coefficients, value: Any) -> _Coefficients:
+    return tuple(_RING.ground_new(c.evaluate(_RING.gens[0], value)) for c in coefficients)
+
+
+def _to_poly(p: _Gain) -> sympy.Poly:
+    return sympy.Poly.from_dict(dict(p), K, domain=sympy.QQ)
+
+
+def _from_poly(p: sympy.Poly) -> _Gain:
+    return _RING.from_dict(p.as_dict(native=True))
+
+
+@functools.lru_cache(maxsize=64)
+def _delay_terms(delay: Fraction | None, count: int) -> tuple[Any, ...]:
+    one = sympy.QQ(1)
+    if not delay:
+        return (one,)
+    minus_t = -_qq(delay)
+    terms = [one]
+    for n in range(1, count):
+        terms.append(terms[-1] * minus_t / n)
+    return tuple(terms)
+
+
+def _lowest(f: _Quasi, is_zero: _ZeroTest) -> tuple[int, _Gain] | None:
+    """Order at s = 0 and lowest coefficient of f; None when f vanishes identically."""
+    limit = f.search_limit()
+    terms = _delay_terms(f.delay, limit + 1)
+    for n in range(limit + 1):
+        c = f.coefficient(n, terms)
+        if not is_zero(c):
+            return n, c
+    if f.delay and any(not is_zero(c) for c in f.b):
+        raise AssertionError("A + B·e^{-sT} vanished beyond its order bound")  # proven above
+    return None
+
+
+@dataclass(frozen=True, slots=True)
+class _Limit:
+    """lim s→0 of s^shift·F1/F2: "zero", "inf", or "ratio" a/b of two polynomials in K."""
+
+    kind: str
+    a: _Gain = _RING.zero
+    b: _Gain = _RING.zero
+
+
+def _limit(f1: _Quasi, f2: _Quasi, shift: int, is_zero: _ZeroTest) -> _Limit:
+    low2 = _lowest(f2, is_zero)
+    if low2 is None:
+        return _Limit("inf")
+    low1 = _lowest(f1, is_zero)
+    if low1 is None:
+        return _Limit("zero")
+    order = low1[0] + shift - low2[0]
+    if order > 0:
+        return _Limit("zero")
+    if order < 0:
+        return _Limit("inf")
+    return _Limit("ratio", low1[1], low2[1])
+
+
+@dataclass(frozen=True, slots=True)
+class _Series:
+    nge: _Quasi  # numerator of Ge; e^{-sT} leaves its order and lowest coefficient alone
+    dge: _Quasi  # denominator of Ge
+    char: _Quasi  # nge + dge: the closed loop's characteristic quasi-polynomial
+    dist: _Quasi  # numerator of Y/D for a disturbance at the plant input
+    feedback_num: _Quasi
+    feedback_den: _Quasi
+    controller_den: _Quasi
+
+    def at(self, value: Any) -> _Series:
+        return _Series(
+            self.nge.at(value),
+            self.dge.at(value),
+            self.char.at(value),
+            self.dist.at(value),
+            self.feedback_num.at(value),
+            self.feedback_den.at(value),
+            self.controller_den.at(value),
+        )
+
+
+@functools.lru_cache(maxsize=64)
+def _series(loop: LoopAlgebra) -> _Series:
+    c, g, h = loop.controller, loop.plant, loop.feedback
+    poles = c.den * g.den * h.den
+    forward = c.num * g.num
+    delay = loop.delay if loop.delay else None
+    a = _by_power(poles)
+    return _Series(
+        nge=_Quasi(_by_power(forward * h.den), (), None),
+        dge=_Quasi(a, _by_power(forward * (h.num - h.den)), delay),
+        char=_Quasi(a, _by_power(forward * h.num), delay),
+        dist=_Quasi(_by_power(g.num * c.den * h.den), (), None),
+        feedback_num=_Quasi(_by_power(h.num), (), None),
+        feedback_den=_Quasi(_by_power(h.den), (), None),
+        controller_den=_Quasi(_by_power(c.den), (), None),
+    )
+
+
+def _nominal_series(loop: LoopAlgebra) -> _Series:
+    series = _series(loop)
+    if loop.nominal is None:
+        if _involves_gain(series):
+            raise ValueError("the loop's blocks hold the gain but the loop has no nominal gain")
+        return series
+    return series.at(_qq(loop.nominal))
+
+
+def _involves_gain(series: _Series) -> bool:
+    quasis = (series.nge, series.dge, series.char, series.dist)
+    return any(c.degree() > 0 for q in quasis for c in (*q.a, *q.b))
+
+
+def _type(series: _Series, is_zero: _ZeroTest) -> int:
+    low_d = _lowest(series.dge, is_zero)
+    if low_d is None:
+        return DEGENERATE_TYPE
+    low_n = _lowest(series.nge, is_zero)
+    if low_n is None:
+        return 0
+    return max(0, low_d[0] - low_n[0])
+
+
+def _value(limit: _Limit) -> sympy.Expr:
+    """The limit as a sympy number, or an expression in K when the coefficients hold it."""
+    if limit.kind == "zero":
+        return ZERO
+    if limit.kind == "inf":
+        return INF
+    num, den = limit.a.cancel(limit.b)
+    if den.is_ground:
+        return num.as_expr() / sympy.QQ.to_sympy(den.LC)
+    return num.as_expr() / den.as_expr()
+
+
+# -- figures at the nominal gain ----------------------------------------------------------
+
+
+def steady_state(loop: LoopAlgebra) -> SteadyState:
+    """Type, Kp, Kv, Ka and unit errors at the nominal gain, plus Kp, Kv, Ka in the gain.
+
+    Raises ValueError when the blocks hold the gain but the loop has no nominal value.
+    """
+    generic = _series(loop)
+    nominal = _nominal_series(loop)
+    z = _generic_zero
+    return SteadyState(
+        type=_type(nominal, z),
+        kp=_value(_limit(nominal.nge, nominal.dge, 0, z)),
+        kv=_value(_limit(nominal.nge, nominal.dge, 1, z)),
+        ka=_value(_limit(nominal.nge, nominal.dge, 2, z)),
+        kp_expr=_value(_limit(generic.nge, generic.dge, 0, z)),
+        kv_expr=_value(_limit(generic.nge, generic.dge, 1, z)),
+        ka_expr=_value(_limit(generic.nge, generic.dge, 2, z)),
+        step_error=_value(_limit(nominal.dge, nominal.char, 0, z)),
+        ramp_error=_value(_limit(nominal.dge, nominal.char, -1, z)),
+        parabola_error=_value(_limit(nominal.dge, nominal.char, -2, z)),
+    )
+
+
+def tracking_error(ss: SteadyState, reference: str, magnitude: Fraction) -> sympy.Expr:
+    """Final value of e = r − y for a step, ramp or parabola of magnitude R (signed; 0, oo)."""
+    unit = {"step": ss.step_error, "ramp": ss.ramp_error, "parabola": ss.parabola_error}
+    if reference not in unit:
+        raise ValueError(f"unknown reference {reference!r}; expected one of {REFERENCES}")
+    return _scaled(unit[reference], magnitude)
+
+
+def disturbance_error(loop: LoopAlgebra, magnitude: Fraction) -> sympy.Expr:
+    """Final output deviation after a step disturbance of that size at the plant input.
+
+    lim s→0 of G/(1 + C·G·H·e^{−sT}) times the magnitude, at the nominal gain; signed, oo
+    when it grows without bound.
+    """
+    nominal = _nominal_series(loop)
+    return _scaled(_value(_limit(nominal.dist, nominal.char, 0, _generic_zero)), magnitude)
+
+
+def _scaled(unit: sympy.Expr, magnitude: Fraction) -> sympy.Expr:
+    if magnitude == 0:
+        return ZERO
+    if unit is INF:
+        return INF
+    return unit * exact(magnitude)
+
+
+# -- gain sets ------------------------------------------------------------------------------
+
+_Test = Callable[[_Gain, _Gain], _Gain]
+
+
+def tracking_gains(
+    loop: LoopAlgebra, reference: str, magnitude: Fraction, max_error: Fraction
+) -> GainSet:
+    """Gains K > 0 where |e_ss| ≤ max_error for that reference (stability not considered)."""
+    order = _reference_order(reference)
+    _check_limit(max_error)
+    if magnitude == 0:
+        return GainSet.positive()
+    r, m = _qq(magnitude), _qq(max_error)
+    series = _series(loop)
+    return _gain_set(
+        series.dge,
+        series.char,
+        -order,
+        lambda a, b: (b * m) ** 2 - (a * r) ** 2,
+        holds_at_zero=True,
+        holds_at_inf=False,
+    )
+
+
+def constant_gains(loop: LoopAlgebra, which: str, minimum: Fraction) -> GainSet:
+    """Gains K > 0 where Kp, Kv or Ka (``which``: "kp", "kv", "ka") is ≥ minimum."""
+    if which not in CONSTANTS:
+        raise ValueError(f"unknown error constant {which!r}; expected one of {CONSTANTS}")
+    m = _qq(minimum)
+    series = _series(loop)
+    return _gain_set(
+        series.nge,
+        series.dge,
+        _ORDER[which],
+        lambda a, b: (a - b * m) * b,
+        holds_at_zero=minimum <= 0,
+        holds_at_inf=True,
+    )
+
+
+def disturbance_gains(loop: LoopAlgebra, magnitude: Fraction, max_error: Fraction) -> GainSet:
+    """Gains K > 0 where a step disturbance at the plant input leaves |Δy| ≤ max_error."""
+    _check_limit(max_error)
+    if magnitude == 0:
+        return GainSet.positive()
+    d, m = _qq(magnitude), _qq(max_error)
+    series = _series(loop)
+    return _gain_set(
+        series.dist,
+        series.char,
+        0,
+        lambda a, b: (b * m) ** 2 - (a * d) ** 2,
+        holds_at_zero=True,
+        holds_at_inf=False,
+    )
+
+
+def _reference_order(reference: str) -> int:
+    if reference not in REFERENCES:
+        raise ValueError(f"unknown reference {reference!r}; expected one of {REFERENCES}")
+    return _ORDER[reference]
+
+
+def _check_limit(max_error: Fraction) -> None:
+    if max_error < 0:
+        raise ValueError("a largest allowed error cannot be negative")
+
+
+def _gain_set(
+    f1: _Quasi,
+    f2: _Quasi,
+    shift: int,
+    test: _Test,
+    holds_at_zero: bool,
+    holds_at_inf: bool,
+) -> GainSet:
+    """K > 0 where the limit of s^shift·F1/F2 passes: a ratio a/b passes where
+    test(a, b) ≥ 0 (b ≠ 0), "zero" and "inf" per the two flags."""
+    generic = _limit(f1, f2, shift, _generic_zero)
+    positive = GainSet.positive()
+    if generic.kind == "ratio":
+        result = where_sign(_to_poly(test(generic.a, generic.b)), positive=True, closed=True)
+        result = result.intersect(positive)
+    else:
+        holds = holds_at_zero if generic.kind == "zero" else holds_at_inf
+        result = positive if holds else GainSet.empty()
+    for root, factor, index in _special_gains(f1, f2):
+        at_root = _limit(f1, f2, shift, _divisible_by(factor))
+        if at_root.kind == "ratio":
+            holds = _sign_at(test(at_root.a, at_root.b), factor, index) >= 0
+        else:
+            holds = holds_at_zero if at_root.kind == "zero" else holds_at_inf
+        result = _with_point(result, root, holds)
+    return result
+
+
+def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, sympy.Poly, int]]:
+    """Gains K > 0 where a generic lowest coefficient of F1 or F2 vanishes, each with its
+    irreducible polynomial and its index among that polynomial's real roots."""
+    low2 = _lowest(f2, _generic_zero)
+    if low2 is None:
+        return []  # F2 vanishes for every gain: the limit is infinite everywhere
+    special = low2[1]
+    low1 = _lowest(f1, _generic_zero)
+    if low1 is not None:
+        special = special * low1[1]
+    if special.degree() <= 0:
+        return []
+    points = []
+    for factor, _ in _to_poly(special).factor_list()[1]:
+        for index, root in enumerate(factor.real_roots()):
+            if less(ZERO, root):
+                points.append((root, factor, index))
+    return points
+
+
+def _divisible_by(factor: sympy.Poly) -> _ZeroTest:
+    # factor is irreducible over Q, so p(root) = 0 exactly when factor divides p.
+    divisor = _from_poly(factor)
+    return lambda p: not p % divisor
+
+
+def _sign_at(gain_poly: _Gain, factor: sympy.Poly, index: int) -> int:
+    """Exact sign of a polynomial at the index-th real root of the irreducible ``factor``."""
+    p = _to_poly(gain_poly)
+    if p.rem(factor).is_zero:
+        return 0
+    if factor.degree() == 1:
+        return int(sympy.sign(p.eval(factor.real_roots()[0])))
+    (lo, hi), _ = factor.intervals()[index]
+    # p(root) ≠ 0: shrink the isolating interval until p has no root in it, then the sign of
+    # p anywhere in the interval is its sign at the root.
+    while p.count_roots(lo, hi) > 0:
+        lo, hi = factor.refine_root(lo, hi, eps=(hi - lo) / 8)
+    return int(sympy.sign(p.eval(lo)))
+
+
+def _with_point(gains: GainSet, point: sympy.Expr, present: bool) -> GainSet:
+    pieces: list[Interval] = []
+    for iv in gains.intervals:
+        if iv.contains(point):
+            pieces.append(Interval(iv.lo, point, iv.lo_closed, False))
+            pieces.append(Interval(point, iv.hi, False, iv.hi_closed))
+        else:
+            pieces.append(iv)
+    if present:
+        pieces.append(Interval(point, point, True, True))
+    return GainSet.of(pieces)
+
+
+# -- reasons --------------------------------------------------------------------------------
+
+
+def why_tracking_unreachable(
+    loop: LoopAlgebra, reference: str, magnitude: Fraction, max_error: Fraction
+) -> str | None:
+    """Why no gain K > 0 meets the tracking limit (stability aside); None when some does."""
+    if not tracking_gains(loop, reference, magnitude, max_error).is_empty():
+        return None
+    order = _reference_order(reference)
+    series = _series(loop)
+    generic = _limit(series.dge, series.char, -order, _generic_zero)
+    h0 = _feedback_dc_gain(series)
+    if generic.kind == "ratio":
+        value = _ratio(generic) * exact(magnitude)
+        return _too_large(f"the {reference} error", value, max_error) + _h_note(h0)
+    loop_type = _type(series, _generic_zero)
+    reason = f"type {loop_type} loop: the {reference} error is infinite for every gain"
+    if h0 is not None and h0 != 1:
+        return (
+            f"{reason}; the feedback path's DC gain is {format_number(h0)}, not 1: "
+            "integrators in the loop cannot remove it"
+        )
+    return reason + _integrators(order - loop_type)
+
+
+def why_constant_unreachable(loop: LoopAlgebra, which: str, minimum: Fraction) -> str | None:
+    """Why no gain K > 0 gives Kp, Kv or Ka ≥ minimum; None when some gain does."""
+    if not constant_gains(loop, which, minimum).is_empty():
+        return None
+    series = _series(loop)
+    name = _DISPLAY[which]
+    generic = _limit(series.nge, series.dge, _ORDER[which], _generic_zero)
+    if generic.kind == "ratio":
+        return _too_small(name, _ratio(generic), minimum) + _h_note(_feedback_dc_gain(series))
+    if which == "kp":
+        return "Kp is 0 for every gain: the equivalent forward path has a zero at s = 0"
+    loop_type = _type(series, _generic_zero)
+    reason = f"type {loop_type} loop: {name} is 0 for every gain"
+    return reason + _integrators(_ORDER[which] - loop_type)
+
+
+def why_disturbance_unreachable(
+    loop: LoopAlgebra, magnitude: Fraction, max_error: Fraction
+) -> str | None:
+    """Why no gain K > 0 keeps the step-disturbance deviation within the limit; None if one does."""
+    if not disturbance_gains(loop, magnitude, max_error).is_empty():
+        return None
+    series = _series(loop)
+    generic = _limit(series.dist, series.char, 0, _generic_zero)
+    if generic.kind != "ratio":
+        return (
+            "the output deviation after a step disturbance at the plant input grows without "
+            "bound for every gain"
+        )
+    value = _ratio(generic) * exact(magnitude)
+    what = "the output deviation after a step disturbance at the plant input"
+    reason = _too_large(what, value, max_error)
+    controller_poles = _lowest(series.controller_den, _generic_zero)
+    if controller_poles is None or controller_poles[0] == 0:
+        reason += "; an integrator in the controller removes it"
+    return reason
+
+
+def _ratio(limit: _Limit) -> sympy.Expr:
+    return _value(limit)
+
+
+def _too_large(what: str, value: sympy.Expr, limit: Fraction) -> str:
+    shown = format_number(exact(limit))
+    if not value.free_symbols:
+        size = "more than" if value > 0 else "larger in size than"
+        return f"{what} is {format_number(value)} for every gain, {size} the allowed {shown}"
+    bound = format_number(_extreme(value, upper=False))
+    return f"no gain brings {what} within {shown}: it is at least {bound} for every gain"
+
+
+def _too_small(name: str, value: sympy.Expr, minimum: Fraction) -> str:
+    shown = format_number(exact(minimum))
+    if not value.free_symbols:
+        return f"{name} is {format_number(value)} for every gain, less than the required {shown}"
+    bound = format_number(_extreme(value, upper=True))
+    return f"no gain makes {name} reach {shown}: it is at most {bound} for every gain"
+
+
+def _integrators(missing: int) -> str:
+    if missing <= 0:
+        return ""
+    return "; add an integrator" if missing == 1 else f"; add {missing} integrators"
+
+
+def _h_note(h0: sympy.Expr | None) -> str:
+    if h0 is None or h0 == 1:
+        return ""
+    return f"; the feedback path's DC gain is {format_number(h0)}, not 1"
+
+
+def _feedback_dc_gain(series: _Series) -> sympy.Expr | None:
+    """H(0) when it is a finite number free of the gain, else None."""
+    limit = _limit(series.feedback_num, series.feedback_den, 0, _generic_zero)
+    value = _value(limit)
+    if value is INF or value.free_symbols:
+        return None
+    return value
+
+
+def _extreme(value: sympy.Expr, upper: bool) -> sympy.Expr:
+    """For display: sup of value(K) (upper) or inf of |value(K)| over K > 0.
+
+    Candidates are the limits at 0+ and ∞ and the values at stationary points and zeros;
+    stationary points that are irrational enter as 20-digit floats (display only).
+    """
+    num_expr, den_expr = sympy.fraction(sympy.cancel(value))
+    num = sympy.Poly(num_expr, K, domain=sympy.QQ)
+    den = sympy.Poly(den_expr, K, domain=sympy.QQ)
+    candidates = [_end_value(num, den, at_zero=True), _end_value(num, den, at_zero=False)]
+    stationary = num.diff(K) * den - num * den.diff(K)
+    for p in (stationary, num):
+        if p.degree() <= 0:
+            continue
+        for root in p.real_roots():
+            if less(ZERO, root) and den.eval(root) != 0:
+                candidates.append(sympy.Float((num_expr / den_expr).subs(K, root).evalf(20), 20))
+    if upper:
+        return max(candidates, key=_float_key)
+    return min((abs(c) for c in candidates), key=_float_key)
+
+
+def _end_value(num: sympy.Poly, den: sympy.Poly, at_zero: bool) -> sympy.Expr:
+    if at_zero:
+        n_order = min(m[0] for m in num.monoms())
+        d_order = min(m[0] for m in den.monoms())
+        n_lead, d_lead = num.nth(n_order), den.nth(d_order)
+        # value ~ (n_lead/d_lead)·K^(n_order − d_order) as K → 0+
+        gap = d_order - n_order
+    else:
+        n_lead, d_lead = num.LC(), den.LC()
+        gap = num.degree() - den.degree()
+    ratio = sympy.Rational(n_lead) / sympy.Rational(d_lead)
+    if gap == 0:
+        return ratio
+    if gap < 0:
+        return ZERO
+    return INF if ratio > 0 else -INF
+
+
+def _float_key(x: sympy.Expr) -> float:
+    if x is INF:
+        return float("inf")
+    if x == -INF:
+        return float("-inf")
+    return float(x)
