@@ -75,6 +75,10 @@ def _parser(stdout: TextIO) -> argparse.ArgumentParser:
     )
     check.add_argument("--no-cache", action="store_true", help="analyse every loop afresh")
     check.add_argument(
+        "--jobs", "-j", type=int, default=0, metavar="N",
+        help="worker processes for the analysis (default: one per core when many loops need it)",
+    )
+    check.add_argument(
         "--focus",
         action="store_true",
         help="check the whole configured spec set but report only on the given files "
@@ -140,7 +144,7 @@ def _check(args: argparse.Namespace, stdout: TextIO) -> int:
     cwd = Path.cwd()
     config = find_config(cwd, Path(args.config) if args.config else None)
     fail_on = parse_severity(args.fail_on, "--fail-on") if args.fail_on else config.fail_on
-    options = Options(use_cache=not args.no_cache)
+    options = Options(use_cache=not args.no_cache, jobs=max(args.jobs, 0))
     if args.focus:
         from speclint.focus import narrow, selector
 

@@ -8,11 +8,17 @@ edges (discover, load, report) touch the outside world.
 
 from __future__ import annotations
 
+import os
+import signal
+import threading
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
 from speclint import trace
 from speclint.build import build, buildable
+from speclint.cache import Cache, loop_key
 from speclint.discover import Config, display_path, spec_files
 from speclint.findings import Finding, Location
 from speclint.load import MAX_FILE_BYTES, read_spec
@@ -25,7 +31,7 @@ from speclint.validate import validate
 @dataclass(frozen=True, slots=True)
 class Options:
     use_cache: bool = True
-    jobs: int = 1
+    jobs: int = 0  # 0: decide from the number of loops to analyse
 
 
 def run(config: Config, given: list[str], cwd: Path, options: Options | None = None) -> RunResult:
@@ -43,11 +49,10 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
         if spec is not None:
             specs.append(spec)
     found = trace.index(specs, result.findings)
-    for loop in found.loops.values():
-        mine = [r for r in found.requirements if r.loop == loop.name]
-        loop_result, req_results = _analyse(loop, mine, result.findings)
+    for loop_result, req_results, loop_findings in _analyse_all(found, config, options):
         result.loops.append(loop_result)
         result.requirements.extend(req_results)
+        result.findings.extend(loop_findings)
     analysed = {r.id for r in result.requirements}
     for req in found.requirements:
         if req.id not in analysed:
@@ -98,22 +103,96 @@ def internal_error(shown: str, exc: BaseException) -> Finding:
     return finding("SL001", message, Location(shown, 1, 1), hint)
 
 
-def _analyse(
-    loop: Loop, requirements: list[Requirement], findings: list[Finding]
-) -> tuple[LoopResult, list[RequirementResult]]:
+Analysed = tuple[LoopResult, list[RequirementResult], list[Finding]]
+
+# Wall-clock budget for one loop's analysis. Degree and size caps keep honest models far
+# below it (milliseconds); it stops a pathological one from holding up CI.
+LOOP_BUDGET_S = 20.0
+
+
+def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[Analysed]:
+    """Every loop's figures and verdicts, from the cache where it has them, in loop order."""
+    cache = Cache(config.root / config.cache_dir) if options.use_cache else None
+    work: list[tuple[int, Loop, list[Requirement], str | None]] = []
+    out: list[Analysed | None] = []
+    for loop in found.loops.values():
+        mine = [r for r in found.requirements if r.loop == loop.name]
+        key = loop_key(loop, mine) if cache is not None else None
+        hit = cache.get(key) if cache is not None and key is not None else None
+        out.append(hit)
+        if hit is None:
+            work.append((len(out) - 1, loop, mine, key))
+    jobs = options.jobs if options.jobs > 0 else default_jobs(len(work))
+    if jobs > 1 and len(work) > 1:
+        from concurrent.futures import ProcessPoolExecutor
+
+        with ProcessPoolExecutor(max_workers=jobs) as pool:
+            done = list(pool.map(analyse_loop, [(w[1], w[2]) for w in work], chunksize=4))
+    else:
+        done = [analyse_loop((loop, mine)) for _, loop, mine, _ in work]
+    for (slot, _, _, key), analysed in zip(work, done, strict=True):
+        out[slot] = analysed
+        if cache is not None and key is not None and not _has_internal_error(analysed):
+            cache.put(key, *analysed)
+    return [a for a in out if a is not None]
+
+
+def default_jobs(loops_to_analyse: int) -> int:
+    """Worker processes: one per core once there are enough loops to repay starting them."""
+    cores = os.cpu_count() or 1
+    return cores if loops_to_analyse >= 24 else 1
+
+
+def _has_internal_error(analysed: Analysed) -> bool:
+    return any(f.rule == "SL001" or f.rule == "SL407" for f in analysed[2])
+
+
+def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
+    """One loop's analysis and verdicts; never raises (a failure becomes a finding)."""
+    loop, requirements = task
     # Imported here: the analysis needs sympy and numpy, which a run that only validates
     # (or finds everything in the cache) must not pay for.
     from speclint import judge
 
     try:
-        outcome = judge.judge_loop(loop, requirements)
-    except Exception as exc:
-        findings.append(internal_error(loop.location.path, exc))
-        return judge.unanalysed_loop(loop), [
-            judge.invalid(r, "internal error") for r in requirements
-        ]
-    findings.extend(outcome.findings)
-    return outcome.loop, outcome.requirements
+        with time_budget(LOOP_BUDGET_S):
+            outcome = judge.judge_loop(loop, requirements)
+    except BudgetExceeded:
+        msg = f"loops.{loop.name}: the analysis took longer than {LOOP_BUDGET_S:g} s and was stopped"
+        hint = "simplify the model (lower degree, fewer constants) or report it if it is ordinary"
+        stopped = finding("SL407", msg, loop.location, hint, subject=loop.name)
+        why = "the loop's analysis was stopped (time budget)"
+        return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [stopped]
+    except Exception as exc:  # a bug of ours: report it against the loop, go on with the rest
+        bug = internal_error(loop.location.path, exc)
+        why = "internal error"
+        return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [bug]
+    return outcome.loop, outcome.requirements, outcome.findings
+
+
+class BudgetExceeded(Exception):
+    """A loop's analysis ran past its time budget."""
+
+
+@contextmanager
+def time_budget(seconds: float) -> Iterator[None]:
+    """Raise BudgetExceeded in this thread after `seconds` (POSIX main thread only; elsewhere
+    no budget applies)."""
+    usable = hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
+    if not usable:
+        yield
+        return
+
+    def expire(signum: int, frame: object) -> None:
+        raise BudgetExceeded
+
+    previous = signal.signal(signal.SIGALRM, expire)
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
 
 
 def _unanalysed(req: Requirement, found: trace.Index) -> RequirementResult:
