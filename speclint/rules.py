@@ -114,7 +114,7 @@ RULES: dict[str, Rule] = _catalogue(
     Rule("SL603", "dangling-link", E, "traces_to names a requirement the spec set does not define"),
     Rule("SL604", "orphan", E, "a requirement states neither an origin nor a traces_to link"),
     Rule("SL605", "link-cycle", E, "traces_to links lead from a requirement back to itself"),
-    Rule("SL606", "unrefined-parent", W, "a textual requirement that no requirement traces to"),
+    Rule("SL606", "unrefined-parent", W, "a textual requirement that nothing refines or verifies"),
     Rule("SL607", "idle-loop", W, "a loop that no requirement names"),
     Rule("SL608", "unverified", W, "a requirement with criteria states no verification method"),
     Rule("SL609", "missing-evidence", E, "an evidence path does not exist in the repository"),

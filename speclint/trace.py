@@ -12,6 +12,8 @@ Decisions worth knowing:
   placed under its parents, and its origin is shown as a reference. That is allowed.
 * When an ID is defined twice (SL601), the first definition in (path, line) order is the
   one links resolve to.
+* A textual requirement (no loop, no criteria) is either refined by the requirements that
+  trace to it or verified itself (its own `verification`); one that is neither is SL606.
 * A link to a requirement that exists but has errors of its own resolves (no second
   finding), but the trace is not followed through it.
 * Evidence paths are relative to the configuration's folder (the repository root);
@@ -340,9 +342,10 @@ def _children(
 
 def _unrefined(found: Index, children: dict[str, tuple[str, ...]]) -> Iterator[Finding]:
     for req in found.requirements:
-        if req.loop is None and not req.criteria and not children.get(req.id):
-            msg = f"{req.id}: a textual requirement that no requirement traces to, so nothing refines it"
-            hint = "trace the requirements that carry it out to it, or give it a loop and criteria"
+        textual = req.loop is None and not req.criteria
+        if textual and req.verification is None and not children.get(req.id):
+            msg = f"{req.id}: a textual requirement that no requirement traces to and nothing verifies"
+            hint = "trace the requirements that carry it out to it, or state how it is verified"
             yield finding("SL606", msg, req.place("id"), hint, subject=req.id)
 
 
