@@ -420,7 +420,9 @@ def trace_criteria(c: Criterion, unit: str | None) -> list[TraceCriterion]:
     """The limits a criterion states, one per figure, as exact text."""
 
     def limit(relation: str, x: Fraction, what: str | None = unit) -> str:
-        return f"{relation} {exact(x)}" + (f" {what}" if what else "")
+        if not what:
+            return f"{relation} {exact(x)}"
+        return f"{relation} {exact(x)}{'' if what == '°' else ' '}{what}"
 
     if isinstance(c, Tracking):
         required = limit("≤", c.max_error)

@@ -43,8 +43,15 @@ def _json(result: RunResult, settings: Settings) -> str:
     return json_report.render(result, settings)
 
 
+def _markdown(result: RunResult, settings: Settings) -> str:
+    from speclint.report import markdown
+
+    return markdown.render(result, settings)
+
+
 # Each reporter imports its module only when chosen: a run pays for one format.
 REPORTERS: dict[str, Callable[[RunResult, Settings], str]] = {
     "console": _console,
     "json": _json,
+    "markdown": _markdown,
 }
