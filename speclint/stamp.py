@@ -104,12 +104,13 @@ def stamp(config: Config, cwd: Path, ids: list[str], by: str, date: str) -> list
         if not item.stamps:
             continue
         try:
-            where = _write(item)
+            lines = _write(item)
         except Refused as exc:
             for rid, _, _ in item.stamps:
                 outcomes[rid] = Outcome(rid, False, f"{item.shown}: {exc}; nothing written")
             continue
         for rid, _, record in item.stamps:
+            where = f"{item.shown}:{lines[rid]}"
             outcomes[rid] = Outcome(rid, True, f"{where} (fingerprint {record['fingerprint']})")
     return [outcomes[rid] for rid in dict.fromkeys(ids)]
 
@@ -177,7 +178,8 @@ def _plan(rid: str, files: list[_File], found: trace.Index, by: str, date: str) 
     item.stamps.append((rid, index, {"fingerprint": now, "by": by, "date": date}))
 
 
-def _write(item: _File) -> str:
+def _write(item: _File) -> dict[str, int]:
+    """Make the item's stamps in its file; the line of each stamped requirement."""
     assert item.document is not None
     text = item.raw.decode("utf-8")  # a leading byte-order mark stays a character, and is kept
     edits = []
@@ -188,13 +190,8 @@ def _write(item: _File) -> str:
     new = new_text.encode("utf-8")
     if new != item.raw:
         write_if_unchanged(item.path, item.raw, item.mtime_ns, new)
-    lines = sorted(_line_of(text, index) for _, index, _ in item.stamps)
-    return f"{item.shown}:" + ",".join(str(n) for n in lines)
-
-
-def _line_of(text: str, index: int) -> int:
-    node = _requirement_node(_compose(text), index)
-    return int(node.start_mark.line) + 1
+    root = _compose(text)
+    return {rid: int(_requirement_node(root, i).start_mark.line) + 1 for rid, i, _ in item.stamps}
 
 
 def apply(text: str, edits: list[Edit]) -> str:
@@ -236,7 +233,8 @@ def _requirement_node(root: yaml.Node, index: int) -> yaml.MappingNode:
 
 def review_edits(text: str, index: int, record: dict[str, str]) -> list[Edit]:
     """The edits that write `record` as the `reviewed` of requirements[index] in `text`."""
-    req = _requirement_node(_compose(text), index)
+    root = _compose(text)
+    req = _requirement_node(root, index)
     if req.flow_style:
         raise Refused(
             "the requirement is written in flow style ({...}); write it in block style "
@@ -245,7 +243,7 @@ def review_edits(text: str, index: int, record: dict[str, str]) -> list[Edit]:
     existing = _entry(req, "reviewed")
     if existing is not None:
         return _refresh(text, existing[1], record)
-    return [_insert(text, req, record)]
+    return [_insert(text, req, record, _indent_step(req, root))]
 
 
 def _quoted(value: str) -> str:
@@ -280,16 +278,29 @@ def _content_end(node: yaml.Node) -> int:
     return int(node.end_mark.index)
 
 
-def _indent_step(req: yaml.MappingNode) -> int:
-    for key, value in req.value:
-        if isinstance(value, yaml.MappingNode) and not value.flow_style and value.value:
-            step = int(value.value[0][0].start_mark.column) - int(key.start_mark.column)
-            if step > 0:
-                return step
+def _indent_step(*scopes: yaml.Node) -> int:
+    """The file's own indentation step: how far a nested block mapping sits in from its
+    key, looked for in each scope in turn (the requirement, then the whole file); 2 if
+    none shows it."""
+    for scope in scopes:
+        todo = [scope]
+        while todo:
+            node = todo.pop(0)
+            if isinstance(node, yaml.SequenceNode):
+                todo.extend(node.value)
+            if not isinstance(node, yaml.MappingNode):
+                continue
+            for key, value in node.value:
+                nested = isinstance(value, yaml.MappingNode) and not value.flow_style
+                if nested and value.value and not node.flow_style:
+                    step = int(value.value[0][0].start_mark.column) - int(key.start_mark.column)
+                    if step > 0:
+                        return step
+                todo.append(value)
     return 2
 
 
-def _insert(text: str, req: yaml.MappingNode, record: dict[str, str]) -> Edit:
+def _insert(text: str, req: yaml.MappingNode, record: dict[str, str], step: int) -> Edit:
     end = _content_end(req.value[-1][1])
     while end > 0 and text[end - 1] in " \t\r\n":
         end -= 1
@@ -302,7 +313,7 @@ def _insert(text: str, req: yaml.MappingNode, record: dict[str, str]) -> Edit:
     else:
         newline = "\r\n" if "\r\n" in text else "\n"
     indent = " " * int(req.value[0][0].start_mark.column)
-    inner = indent + " " * _indent_step(req)
+    inner = indent + " " * step
     lines = [f"{indent}reviewed:"] + [f"{inner}{key}: {_quoted(record[key])}" for key in _KEYS]
     return Edit(line_end, line_end, "".join(newline + line for line in lines))
 
