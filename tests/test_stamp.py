@@ -362,3 +362,25 @@ def test_an_edit_that_would_touch_other_content_is_refused(repo, monkeypatch):
     code, _, err = call("stamp", "SYS-1", "--by", BY, "--date", DATE)
     assert code == 1 and "would change more than the review record" in err
     assert _unchanged(repo, {"s.yaml": raw})
+
+
+@pytest.mark.parametrize(
+    ("tail", "after"),
+    [
+        ("    traces_to:\n      - SYS-1\n      - SYS-2  # two parents\n", "- SYS-2  # two parents"),
+        ("    traces_to:\n    - SYS-1\n", "    - SYS-1"),
+        ("    verification:\n      method: test\n      evidence:\n        - a.csv\n", "- a.csv"),
+        ("    text: a plain scalar\n      on two lines\n", "on two lines"),
+        ("    rationale:\n", "rationale:"),
+        ("    text: 'quoted, with a # hash'   # and a comment\n", "# and a comment"),
+    ],
+)
+def test_insertion_after_every_kind_of_last_value(repo, tail, after):
+    head = "speclint: 1\nrequirements:\n  - id: R-1\n    origin: customer list\n"
+    after_text = "\n  # trailing comment, kept below\n\n  - id: R-2\n    origin: x\n"
+    path = repo / "s.yaml"
+    raw = write(path, head + tail + after_text)
+    code, _, err = call("stamp", "R-1", "--by", BY, "--date", DATE)
+    assert code == 0, err
+    p = line_end(raw, after)
+    assert path.read_bytes() == raw[:p] + block(4, 2, "\n", fingerprint_of(raw, "R-1")) + raw[p:]
