@@ -324,9 +324,9 @@ def test_a_file_changed_after_reading_is_left_as_the_other_writer_left_it(repo, 
     theirs = (COMPACT + "\n# saved by an editor meanwhile\n").encode()
     real = stamp_module.review_edits
 
-    def meanwhile(text, index, record):
+    def meanwhile(text, index, record, root=None):
         path.write_bytes(theirs)
-        return real(text, index, record)
+        return real(text, index, record, root)
 
     monkeypatch.setattr(stamp_module, "review_edits", meanwhile)
     code, _, err = call("stamp", "SYS-1", "--by", BY, "--date", DATE)
@@ -353,8 +353,8 @@ def test_an_edit_that_would_touch_other_content_is_refused(repo, monkeypatch):
     raw = write(path, COMPACT)
     real = stamp_module.review_edits
 
-    def sloppy(text, index, record):
-        edits = real(text, index, record)
+    def sloppy(text, index, record, root=None):
+        edits = real(text, index, record, root)
         at = text.index("customer list")
         return [*edits, stamp_module.Edit(at, at + 8, "client")]
 
