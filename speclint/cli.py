@@ -1,4 +1,4 @@
-"""Command line: ``speclint check``, ``speclint rules``, ``speclint schema``.
+"""Command line: ``speclint check``, ``rules``, ``schema``, ``stamp``, ``matrix``.
 
 ``main(argv, stdout, stderr) -> int`` does all the work and never exits, so tests call it
 directly; exit codes are decided in one place:
@@ -92,6 +92,25 @@ def _parser(stdout: TextIO) -> argparse.ArgumentParser:
     schema.add_argument(
         "--path", action="store_true", help="print where the schema file is instead"
     )
+
+    stamp = sub.add_parser("stamp", help="record a review of requirements in their spec files")
+    stamp.add_argument("ids", nargs="+", metavar="ID", help="requirement IDs to stamp")
+    stamp.add_argument("--by", required=True, metavar="NAME", help="who reviewed them")
+    stamp.add_argument("--date", metavar="YYYY-MM-DD", help="when (default: today)")
+    stamp.add_argument("--config", metavar="FILE", help="use this speclint.toml or pyproject.toml")
+
+    matrix = sub.add_parser("matrix", help="write the traceability matrix in Markdown")
+    matrix.add_argument(
+        "paths", nargs="*", help="spec files or folders (default: the configured paths)"
+    )
+    matrix.add_argument("--output", "-o", metavar="FILE", help="write it to FILE")
+    matrix.add_argument(
+        "--check",
+        action="store_true",
+        help="compare with the --output file instead of writing it; exit 1 when out of date",
+    )
+    matrix.add_argument("--config", metavar="FILE", help="use this speclint.toml or pyproject.toml")
+    matrix.add_argument("--no-cache", action="store_true", help="analyse every loop afresh")
     parser.set_defaults(stdout=stdout)
     return parser
 
@@ -106,17 +125,22 @@ def main(
         args, extra = _parser(stdout).parse_known_args(argv)
         # Paths may come after options (`check --format json a.yaml b.yaml`): argparse
         # leaves the later ones over; anything else left over is a real mistake.
-        stray = [e for e in extra if e.startswith("-") or args.command != "check"]
+        positional = {"check": "paths", "matrix": "paths", "stamp": "ids"}.get(args.command)
+        stray = [e for e in extra if e.startswith("-") or positional is None]
         if stray:
             raise UsageError(f"unrecognised arguments: {' '.join(stray)}")
-        if extra:
-            args.paths = [*args.paths, *extra]
+        if extra and positional is not None:
+            setattr(args, positional, [*getattr(args, positional), *extra])
         if args.command == "check":
             return _check(args, stdout)
         if args.command == "rules":
             return _rules(args, stdout)
         if args.command == "schema":
             return _schema(args, stdout)
+        if args.command == "stamp":
+            return _stamp(args, stdout, stderr)
+        if args.command == "matrix":
+            return _matrix(args, stdout)
         _parser(stdout).print_help(stdout)
         return EXIT_USAGE
     except _Done as done:
@@ -222,3 +246,76 @@ def _schema(args: argparse.Namespace, stdout: TextIO) -> int:
         return EXIT_CLEAN
     stdout.write(schema_text())
     return EXIT_CLEAN
+
+
+def _stamp(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
+    import datetime
+
+    from speclint.stamp import check_date, check_name, stamp
+
+    try:
+        by = check_name(args.by)
+        date = check_date(args.date) if args.date else datetime.date.today().isoformat()
+    except ValueError as exc:
+        raise UsageError(f"stamp: {exc}") from None
+    cwd = Path.cwd()
+    config = find_config(cwd, Path(args.config) if args.config else None)
+    outcomes = stamp(config, cwd, args.ids, by, date)
+    for outcome in outcomes:
+        if outcome.done:
+            stdout.write(f"{outcome.id}: stamped at {outcome.message}\n")
+        else:
+            stderr.write(f"speclint: {outcome.id}: not stamped: {outcome.message}\n")
+    return EXIT_CLEAN if all(o.done for o in outcomes) else EXIT_FINDINGS
+
+
+# A diff longer than this helps nobody in a CI log; regenerating shows the rest.
+MAX_DIFF_LINES = 40
+
+
+def _matrix(args: argparse.Namespace, stdout: TextIO) -> int:
+    import difflib
+
+    from speclint.pipeline import Options, run
+
+    if args.check and not args.output:
+        raise UsageError("matrix: --check compares with a file; name it with --output FILE")
+    cwd = Path.cwd()
+    config = find_config(cwd, Path(args.config) if args.config else None)
+    result = run(config, args.paths, cwd, Options(use_cache=not args.no_cache))
+    text = REPORTERS["markdown"](result, Settings(__version__))
+    if not args.output:
+        stdout.write(text)
+        return EXIT_CLEAN
+    target = Path(args.output)
+    if not args.check:
+        write_atomically(target, text)
+        return EXIT_CLEAN
+    try:
+        # CRLF is tolerated: a checkout may convert line endings.
+        current = target.read_bytes().decode("utf-8").replace("\r\n", "\n")
+    except FileNotFoundError:
+        current = None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UsageError(f"matrix: cannot read {args.output}: {exc}") from None
+    if current == text:
+        return EXIT_CLEAN
+    redo = f"speclint matrix --output {args.output}"
+    if current is None:
+        stdout.write(f"{args.output} does not exist; write it with: {redo}\n")
+        return EXIT_FINDINGS
+    stdout.write(f"{args.output} is out of date; write it again with: {redo}\n")
+    diff = list(
+        difflib.unified_diff(
+            current.splitlines(keepends=True),
+            text.splitlines(keepends=True),
+            fromfile=f"{args.output} (on disk)",
+            tofile=f"{args.output} (now)",
+            n=1,
+        )
+    )
+    for line in diff[:MAX_DIFF_LINES]:
+        stdout.write(line if line.endswith("\n") else line + "\n")
+    if len(diff) > MAX_DIFF_LINES:
+        stdout.write(f"... and {len(diff) - MAX_DIFF_LINES} more diff lines\n")
+    return EXIT_FINDINGS

@@ -63,7 +63,9 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
                 rid, where.path, where.line or 0, None, "invalid", "has errors (see the findings)"
             )
         )
-    result.findings.extend(trace.check(specs, found, config))
+    checked = trace.check(specs, found, config)
+    result.findings.extend(checked.findings)
+    result.trace = checked.nodes
     result.findings.sort(key=Finding.sort_key)
     result.requirements.sort(key=lambda r: (r.path, r.line))
     return result

@@ -63,6 +63,43 @@ class RequirementResult:
     admissible_gains: tuple[Interval, ...] | None = None
 
 
+@dataclass(frozen=True, slots=True)
+class TraceCriterion:
+    """One limit of a requirement as the spec states it, before or without analysis."""
+
+    kind: str
+    detail: dict[str, str]
+    required: str  # exact, with its relation and unit: "≤ 0.5 rad/s", "≥ 40 °"
+
+
+@dataclass(frozen=True, slots=True)
+class TraceNode:
+    """One requirement's place in the trace: its links both ways, verification and review.
+
+    Review is "none" (never reviewed), "current", "changed" (with the parts that changed
+    in `changed` when the stored fingerprint tells them), or "unknown" (its loop has
+    errors, so the fingerprint cannot be computed).
+    """
+
+    id: str
+    path: str
+    line: int
+    title: str | None = None
+    text: str | None = None
+    origin: str | None = None
+    loop: str | None = None
+    parents: tuple[str, ...] = ()  # resolved traces_to links, as written
+    children: tuple[str, ...] = ()  # requirements tracing to this one, sorted
+    dangling: tuple[str, ...] = ()  # traces_to links that resolve to nothing
+    criteria: tuple[TraceCriterion, ...] = ()
+    verification: str | None = None
+    evidence: tuple[str, ...] = ()
+    review: str = "none"
+    reviewed_by: str | None = None
+    reviewed_on: str | None = None
+    changed: tuple[str, ...] = ()
+
+
 @dataclass(slots=True)
 class RunResult:
     """Everything one run produced; the reports format it and nothing else."""
@@ -72,3 +109,5 @@ class RunResult:
     loops: list[LoopResult] = field(default_factory=list)
     requirements: list[RequirementResult] = field(default_factory=list)
     sources: dict[str, str] = field(default_factory=dict)  # path -> text, for excerpts
+    # The requirements' trace, by (path, line): links, verification, review state.
+    trace: list[TraceNode] = field(default_factory=list)

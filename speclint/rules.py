@@ -108,6 +108,23 @@ RULES: dict[str, Rule] = _catalogue(
     Rule("SL407", "analysis-budget", E, "a loop's analysis exceeded its time budget"),
     # -- stability margins
     Rule("SL501", "margin-caveat", N, "a convention or caveat applied to the reported margins"),
+    # -- the trace
+    Rule("SL601", "duplicate-id", E, "two requirements of the spec set share one ID"),
+    Rule("SL602", "id-off-pattern", E, "a requirement ID does not match the configured id_pattern"),
+    Rule("SL603", "dangling-link", E, "traces_to names a requirement the spec set does not define"),
+    Rule("SL604", "orphan", E, "a requirement states neither an origin nor a traces_to link"),
+    Rule("SL605", "link-cycle", E, "traces_to links lead from a requirement back to itself"),
+    Rule("SL606", "unrefined-parent", W, "a textual requirement that nothing refines or verifies"),
+    Rule("SL607", "idle-loop", W, "a loop that no requirement names"),
+    Rule("SL608", "unverified", W, "a requirement with criteria states no verification method"),
+    Rule("SL609", "missing-evidence", E, "an evidence path does not exist in the repository"),
+    Rule(
+        "SL610",
+        "evidence-outside",
+        E,
+        "an evidence path is absolute or leads out of the repository",
+    ),
+    Rule("SL611", "stale-review", W, "the requirement has changed since its recorded review"),
 )
 
 

@@ -16,8 +16,11 @@ from conftest import REPO
 from speclint.cli import main
 from speclint.rules import RULES
 
-CLEAN = "speclint: 1\nrequirements:\n  - id: SYS-1\n    origin: customer list, item 1\n"
-BROKEN = "speclint: 1\nrequirements:\n  - id: SYS-1\n    origni: typo\n"
+CLEAN = (
+    "speclint: 1\nrequirements:\n  - id: SYS-1\n    origin: customer list, item 1\n"
+    "    verification: {method: inspection}\n"
+)
+BROKEN = "speclint: 1\nrequirements:\n  - id: SYS-2\n    origni: typo\n"
 
 
 def call(*argv: str) -> tuple[int, str, str]:

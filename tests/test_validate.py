@@ -131,6 +131,7 @@ def test_valid_file_has_no_findings(speclint):
       - id: SYS-1
         origin: customer list, item 1
         text: The line runs.
+        verification: {method: inspection}
     """
     run = speclint({"s.yaml": text})
     assert run.code == 0 and run.report["findings"] == []
@@ -144,6 +145,7 @@ def test_an_error_in_one_requirement_leaves_the_others_checked(speclint):
         loop: feed
         tracking: {reference: ramps, magnitude: 1, max_error: 1}
       - id: R-2
+        origin: customer list, item 2
         loop: nowhere
     """
     run = speclint({"s.yaml": text})

@@ -6,6 +6,7 @@ Adding a format: a module with ``render(result, settings) -> str`` and a line in
 
 from __future__ import annotations
 
+import importlib
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Protocol
@@ -34,41 +35,22 @@ class Reporter(Protocol):
     def __call__(self, result: RunResult, settings: Settings) -> str: ...
 
 
-def _console(result: RunResult, settings: Settings) -> str:
-    from speclint.report import console
+def _lazy(module: str, function: str = "render") -> Callable[[RunResult, Settings], str]:
+    """A reporter that imports its module only when chosen: a run pays for one format."""
 
-    return console.render(result, settings)
+    def render(result: RunResult, settings: Settings) -> str:
+        chosen = importlib.import_module(f"speclint.report.{module}")
+        text: str = getattr(chosen, function)(result, settings)
+        return text
 
-
-def _json(result: RunResult, settings: Settings) -> str:
-    from speclint.report import json_report
-
-    return json_report.render(result, settings)
-
-
-def _sarif(result: RunResult, settings: Settings) -> str:
-    from speclint.report import sarif
-
-    return sarif.render(result, settings)
+    return render
 
 
-def _junit(result: RunResult, settings: Settings) -> str:
-    from speclint.report import junit
-
-    return junit.render(result, settings)
-
-
-def _github(result: RunResult, settings: Settings) -> str:
-    from speclint.report import github
-
-    return github.report(result, settings)
-
-
-# Each reporter imports its module only when chosen: a run pays for one format.
 REPORTERS: dict[str, Callable[[RunResult, Settings], str]] = {
-    "console": _console,
-    "json": _json,
-    "sarif": _sarif,
-    "junit": _junit,
-    "github": _github,
+    "console": _lazy("console"),
+    "json": _lazy("json_report"),
+    "markdown": _lazy("markdown"),
+    "sarif": _lazy("sarif"),
+    "junit": _lazy("junit"),
+    "github": _lazy("github", "report"),
 }
