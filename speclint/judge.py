@@ -426,7 +426,12 @@ def _verdicts(
         for req, verdict in zip(analysed, decided.verdicts, strict=True):
             criteria = tuple(
                 CriterionResult(
-                    x.kind, x.required, x.achieved, x.met, _floats(admissible), dict(x.detail)
+                    x.kind,
+                    x.required,
+                    x.achieved,
+                    x.met,
+                    _floats(admissible),
+                    {"label": x.label, "admissible_text": admissible.describe(symbol), **x.detail},
                 )
                 for x, admissible in zip(limits[req.id], verdict.criteria_admissible, strict=True)
             )
@@ -454,7 +459,10 @@ def _verdicts(
 
 
 def _undecided(req: Requirement, limits: list[_Limit]) -> RequirementResult:
-    criteria = tuple(CriterionResult(x.kind, x.required, x.achieved, x.met, None, dict(x.detail)) for x in limits)
+    criteria = tuple(
+        CriterionResult(x.kind, x.required, x.achieved, x.met, None, {"label": x.label, **x.detail})
+        for x in limits
+    )
     return RequirementResult(
         req.id,
         req.location.path,

@@ -152,8 +152,9 @@ def _loop_figures(loop: LoopResult) -> list[Text]:
     for key, label in (("kp", "Kp"), ("kv", "Kv"), ("ka", "Ka")):
         value = getattr(loop, key)
         shown = f"{label} {number(value)}"
-        if f"{key}(gain)" in ex and loop.gain_symbol is not None:
-            shown += f" (= {ex[f'{key}(gain)']})"
+        formula = ex.get(f"{key}(gain)")
+        if formula is not None and loop.gain_symbol is not None and loop.gain_symbol in formula:
+            shown += f" (= {formula})"
         parts.append(shown)
     out.append(Text("   ".join(parts)))
     if loop.stable is None:
@@ -176,7 +177,7 @@ def _loop_figures(loop: LoopResult) -> list[Text]:
         out.append(
             Text(
                 f"margins: gain {number(m.get('gain_margin_db'), 'dB')}, "
-                f"phase {number(m.get('phase_margin_deg'), '°')}, "
+                f"phase {number(m.get('phase_margin_deg'))}°, "
                 f"delay {number(m.get('delay_margin_s'), 's')}, "
                 f"sensitivity peak {number(m.get('sensitivity_peak'))}"
             )
@@ -196,11 +197,12 @@ def _requirement(console: Console, req: RequirementResult) -> None:
 
 
 def _criterion(c: CriterionResult) -> Text:
-    label = c.kind.replace("_", " ")
-    if c.detail:
-        label += " " + " ".join(safe(v) for v in c.detail.values())
+    label = c.detail.get("label") or c.kind.replace("_", " ")
     mark = "✓" if c.met else ("✗" if c.met is False else "·")
-    text = Text(f"{mark} {label}: required {number(c.required)}, achieved {number(c.achieved)}")
+    style = "green" if c.met else ("red" if c.met is False else "dim")
+    text = Text(mark, style=style) + Text(f" {safe(label)}: achieved {number(c.achieved)}")
+    if "admissible_text" in c.detail:
+        text.append(f"; holds, stably, for {safe(c.detail['admissible_text'])}", style="dim")
     return text
 
 
