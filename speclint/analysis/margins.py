@@ -161,24 +161,28 @@ def _x_to_w(p: sympy.Poly) -> sympy.Poly:
     )
 
 
-def _root_value(p: sympy.Poly, a: sympy.Rational, b: sympy.Rational) -> float:
-    """p's root isolated in [a, b], narrowed to relative width 1e-20, as a float."""
+def _root_value(p: sympy.Poly, a: sympy.Rational, b: sympy.Rational) -> sympy.Rational:
+    """p's root isolated in [a, b], as the midpoint of its interval narrowed to relative
+    width 1e-20: a rational, so values at the root can be computed exactly from it."""
     a, b = sympy.Rational(a), sympy.Rational(b)
     scale = max(abs(a), abs(b))
     if scale != 0 and a != b:
+        # Refinement counts roots with multiplicity: work on the square-free part.
+        p = p.sqf_part()
         a, b = (sympy.Rational(v) for v in p.refine_root(a, b, eps=scale / 10**20))
-    return float((a + b) / 2)
+    return (a + b) / 2
 
 
-def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[float]:
-    """Distinct real roots x ≥ 0 (x > 0 unless `include_zero`) of p, as floats, sorted."""
+def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[sympy.Rational]:
+    """Distinct real roots x ≥ 0 (x > 0 unless `include_zero`) of p, sorted, each as a
+    rational within 1e-20 (relative) of the root."""
     if p.is_zero or p.degree() <= 0:
         return []
-    out: list[float] = []
+    out: list[sympy.Rational] = []
     for (a, b), _mult in p.intervals():
         if a == b == 0:
             if include_zero:
-                out.append(0.0)
+                out.append(sympy.Integer(0))
             continue
         # Isolating intervals of non-zero roots do not contain 0 (it would be the root).
         if b <= 0 or (a < 0 and p.eval(0) != 0 and _root_value(p, a, b) < 0):
@@ -196,9 +200,10 @@ def _strip_common(q: sympy.Poly, p: sympy.Poly) -> sympy.Poly:
         q = sympy.quo(q, g)
 
 
-def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[float, int]]:
-    """Roots x > 0 of q with the exact sign of p there; q and p share no root."""
-    out: list[tuple[float, int]] = []
+def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[sympy.Rational, int]]:
+    """Roots x > 0 of q (as in _nonneg_roots_x) with the exact sign of p there; q and p
+    share no root."""
+    out: list[tuple[sympy.Rational, int]] = []
     if q.is_zero or q.degree() <= 0:
         return out
     for (a, b), _mult in q.intervals():
@@ -208,7 +213,7 @@ def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[float, int]]:
         # Narrow the isolating interval until p has no root in it: p's sign is then the
         # sign at any point of the interval, decided in rational arithmetic.
         while a != b and p.count_roots(a, b) > 0:
-            a, b = (sympy.Rational(v) for v in q.refine_root(a, b, eps=(b - a) / 4))
+            a, b = (sympy.Rational(v) for v in q.sqf_part().refine_root(a, b, eps=(b - a) / 4))
         mid = (a + b) / 2
         sign = 1 if p.eval(mid) > 0 else -1
         out.append((_root_value(q, a, b), sign))
@@ -216,17 +221,59 @@ def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[float, int]]:
 
 
 def _closed_rhp_roots(p: sympy.Poly) -> tuple[int, int]:
-    """(roots with Re > 0, roots on the imaginary axis) of a polynomial in s, counted exactly."""
-    if p.degree() <= 0:
-        return 0, 0
-    coeffs = p.all_coeffs()
-    bound = (
-        1 + max(abs(sympy.Rational(c) / coeffs[0]) for c in coeffs[1:]) if len(coeffs) > 1 else 1
-    )
-    bound = sympy.Rational(bound) + 1  # Cauchy's bound: every root has |s| < bound
-    closed = p.count_roots(-sympy.I * bound, bound + sympy.I * bound)
-    axis = p.count_roots(-sympy.I * bound, sympy.I * bound)
-    return int(closed) - int(axis), int(axis)
+    """(roots with Re > 0, roots on the imaginary axis) of a polynomial in s, with
+    multiplicity, counted exactly.
+
+    The factor E = gcd(p(s), p(-s)) holds every root z whose mirror -z is a root too (axis
+    roots among them); E is even or odd, E = s^k·f(s²), so its roots are read off f's real
+    roots. What remains has neither, and its right-half-plane roots follow from the Cauchy
+    index of its real and imaginary parts on the axis, by a Sturm chain (the argument
+    principle in exact arithmetic; sympy's rectangle count is unreliable on the boundary).
+    """
+    rhp = axis = 0
+    rest = p
+    while rest.degree() > 0:
+        mirror = rest.compose(sympy.Poly(-S, S, domain=sympy.QQ))
+        e = sympy.gcd(rest, mirror)
+        if e.degree() <= 0:
+            break
+        rest = sympy.quo(rest, e)
+        k = min(n for (n,), c in e.terms() if c != 0)
+        f = _even_in_x(_w_of_s(sympy.quo(e, sympy.Poly(S**k, S, domain=sympy.QQ))))
+        negative = sum(m for (lo, hi), m in f.intervals() if hi < 0)
+        axis += k + 2 * negative
+        rhp += f.degree() - negative
+    if rest.degree() > 0:
+        a, b = _jw_parts(rest)
+        if a.degree() > b.degree():
+            turns = -_cauchy_index(a, b)
+        else:
+            turns = _cauchy_index(b, a)
+        rhp += (rest.degree() - turns) // 2
+    return rhp, axis
+
+
+def _w_of_s(p: sympy.Poly) -> sympy.Poly:
+    """The same coefficients with s renamed ω (for an even polynomial read in x = s²)."""
+    return sympy.Poly.from_dict(dict(p.terms()) or {(0,): 0}, W, domain=sympy.QQ)
+
+
+def _cauchy_index(den: sympy.Poly, num: sympy.Poly) -> int:
+    """Cauchy index of num/den over the real line, V(-∞) - V(+∞) of the Sturm chain."""
+    chain = [den, num]
+    while not chain[-1].is_zero:
+        chain.append(-chain[-2].rem(chain[-1]))
+    chain.pop()
+
+    def changes(sign_at: Callable[[sympy.Poly], int]) -> int:
+        signs = [sign_at(c) for c in chain if not c.is_zero]
+        return sum(1 for u, v in itertools.pairwise(signs) if u * v < 0)
+
+    def at_minus(c: sympy.Poly) -> int:
+        lead = 1 if c.LC() > 0 else -1
+        return lead if c.degree() % 2 == 0 else -lead
+
+    return changes(at_minus) - changes(lambda c: 1 if c.LC() > 0 else -1)
 
 
 def _axis_roots(p: sympy.Poly) -> tuple[tuple[float, int], ...]:
@@ -237,7 +284,7 @@ def _axis_roots(p: sympy.Poly) -> tuple[tuple[float, int], ...]:
         return ()
     out: list[tuple[float, int]] = []
     for (lo, hi), mult in h.intervals():
-        out.append((_root_value(h, lo, hi), int(mult)))
+        out.append((float(_root_value(h, lo, hi)), int(mult)))
     return tuple(out)
 
 
@@ -292,7 +339,9 @@ class _Resp:
         for wz, _m in self.axis_zeros:
             if w == wz:
                 return 0.0
-        return abs(self.l0(w))
+        # Exact at the binary ω, then rounded once: see _phase_deg on why not polyval.
+        x = sympy.Rational(Fraction(w).numerator, Fraction(w).denominator) ** 2
+        return math.sqrt(_ratio(self.n2, self.d2, x))
 
     def psi_rough(self, w: float, side: int = 0) -> float:
         """Continuous phase from the factors; `side` picks a limit at an axis root."""
@@ -479,16 +528,10 @@ def _pieces(resp: _Resp) -> tuple[_Piece, ...]:
 
 def _psi_at_infinity(resp: _Resp) -> float:
     """lim ψ(ω) as ω → ∞ without dead time: each factor tends to ±π/2 exactly."""
-    total = math.pi if resp.lead_negative else 0.0
-    for z in resp.zeros:
-        total += math.pi / 2 + (math.pi if z.real > 0 else 0.0)
-    for z in resp.poles:
-        total -= math.pi / 2 + (math.pi if z.real > 0 else 0.0)
-    for _w, m in resp.axis_zeros:
-        total += m * math.pi / 2
-    for _w, m in resp.axis_poles:
-        total -= m * math.pi / 2
-    return total
+    # arg(jω - z) → π/2 for every root, on either side of the axis.
+    zeros = len(resp.zeros) + sum(m for _w, m in resp.axis_zeros)
+    poles = len(resp.poles) + sum(m for _w, m in resp.axis_poles)
+    return (math.pi if resp.lead_negative else 0.0) + (zeros - poles) * math.pi / 2
 
 
 def _is_flat(piece: _Piece) -> bool:
@@ -658,8 +701,17 @@ def _wrap180(deg: float) -> float:
 
 
 def _phase_deg(resp: _Resp, w: float) -> float:
-    """Principal phase of L(jω) in degrees (the gain factor is positive)."""
-    return math.degrees(cmath.phase(resp.l0(w)) - w * resp.t)
+    """Principal phase of L(jω) in degrees (the gain factor is positive).
+
+    N(jω)·conj D(jω) = P + jQ is computed exactly at the (binary, so rational) ω: a
+    double-precision polynomial value cancels down to a few digits near a lightly damped
+    pole or zero, an exact one is correctly rounded.
+    """
+    wq = sympy.Rational(Fraction(w).numerator, Fraction(w).denominator)
+    x = wq * wq
+    re = resp.p.eval(x)
+    im = wq * resp.q.eval(x)
+    return math.degrees(math.atan2(float(im), float(re)) - w * resp.t)
 
 
 def _gain_crossovers(resp: _Resp, kappa: Fraction) -> tuple[float, ...] | None:
@@ -747,12 +799,9 @@ def _negative_somewhere(p: sympy.Poly) -> bool:
     return any(float(p.eval(sympy.Rational(x))) < 0 for x in points)
 
 
-def _ratio(a: sympy.Poly, b: sympy.Poly, x: float) -> float:
-    return float(np.polyval(_xcoeffs(a), x) / np.polyval(_xcoeffs(b), x))
-
-
-def _xcoeffs(p: sympy.Poly) -> FloatArray:
-    return np.array([float(c) for c in p.all_coeffs()], dtype=np.float64)
+def _ratio(a: sympy.Poly, b: sympy.Poly, x: sympy.Rational) -> float:
+    # Exact: a float polyval can lose every digit next to a lightly damped root.
+    return float(a.eval(x) / b.eval(x))
 
 
 def _gain_margin(
@@ -765,7 +814,7 @@ def _gain_margin(
         return math.inf, math.inf, None
     best = min(pcs, key=lambda wr: (abs(math.log10(kappa * wr[1])), wr[0]))
     r = kappa * best[1]
-    return 1.0 / r, -20.0 * math.log10(r), best[0]
+    return 1.0 / r, -20.0 * math.log10(r) + 0.0, best[0]
 
 
 def _sensitivity_exact(resp: _Resp, kappa: Fraction) -> tuple[float, float, list[str]]:
@@ -1074,7 +1123,14 @@ def _stability_checks(resp: _Resp, hidden: int) -> str | None:
 
 
 def stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
-    """Gains in loop.limits ∩ (0, ∞) for which the closed loop with dead time is stable."""
+    """Gains in loop.limits ∩ (0, ∞) for which the closed loop with dead time is stable.
+
+    Needs L = K·L0(s)·e^{-sT} (else ``unsupported`` says why). Boundaries are the gains
+    1/|L0(jω)| at the phase crossovers; each interval between them is decided by the
+    encirclement count Z = P + N at a sample gain. Internal stability: a closed-right-half-
+    plane root cancelled between blocks makes every gain unstable. Without dead time (T = 0)
+    the same count applies and gives a numeric cross-check of the exact Routh set.
+    """
     form = _factor_form(loop)
     if isinstance(form, str):
         return DelayedStability(None, form, ())
@@ -1098,7 +1154,10 @@ def stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
             f"biproper loop with dead time: unstable for every gain ≥ {upper:.6g}, "
             "where |L(∞)| ≥ 1 puts infinitely many closed-loop roots on the right"
         )
-    hits, unstable_above = _nyquist_hits(resp, upper)
+    try:
+        hits, unstable_above = _nyquist_hits(resp, upper)
+    except MarginsUnsupported as exc:
+        return DelayedStability(None, str(exc), tuple(notes))
     top = min(upper, unstable_above)
     cands = [1.0 / h.r for h in hits if 0.0 < h.r < math.inf]
 
@@ -1110,7 +1169,11 @@ def stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
 
 
 def stable_at_delayed(loop: LoopAlgebra, k: Fraction | None) -> bool:
-    """Closed-loop stability with dead time at gain k (None: nominal), by the Nyquist criterion."""
+    """Closed-loop stability with dead time at gain k (None: nominal), by the Nyquist criterion.
+
+    Any form of gain works here (the gain is substituted first); raises MarginsUnsupported
+    when no gain value is known or the loop is degenerate (zero loop transfer).
+    """
     fx = _fixed(loop, k)
     resp, kappa = fx.resp, float(fx.kappa)
     if resp.rel_degree < 0 or _stability_checks(resp, fx.hidden) is not None:
@@ -1243,7 +1306,7 @@ def _positive_roots(p: sympy.Poly) -> list[float]:
     out = []
     for (a, b), _m in p.intervals():
         if b > 0:
-            out.append(_root_value(p, a, b))
+            out.append(float(_root_value(p, a, b)))
     return out
 
 
