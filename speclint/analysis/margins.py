@@ -41,20 +41,23 @@ stable gain set (``admissible_gains``), and so must any other caller.
 
 Accuracy. Without dead time, gain and phase crossovers and the sensitivity peak's stationary
 points are real roots of polynomials with rational coefficients, isolated exactly with sympy
-and refined to a relative width of 1e-20 before conversion to float: reported frequencies and
-margins carry only the double rounding of the final evaluation (relative error below 1e-13).
-With dead time, gain crossovers stay exact; the unwrapped phase ψ(ω) = ∠L0(jω) - ωT is
-split exactly into monotone pieces (the zeros of dψ/dω are roots of a polynomial with rational
-coefficients, because T is rational), so every phase crossover is bracketed once and only
-once, then refined with scipy's ``brentq`` to machine precision (frequency relative error about
-1e-14, phase error about 1e-13 rad). The sensitivity peak with dead time is a maximum over a
-grid (200 points per decade, 32 per period of e^{-jωT}, and 17 points across every lightly
-damped pole or zero) refined by ``brentq`` on the exact derivative: the peak value is accurate
-to about 1e-12 relative, but a resonance narrower than the grid spacing could be missed.
-Gain-set ends that come from these numbers are sympy ``Float``s (15 digits) with relative
-accuracy about 1e-12 (1e-7 where a boundary comes from a tangency, where the equation has a
-double root); a float end is always open, since within that accuracy the end itself is
-undecided.
+and refined to a rational within 1e-20 (relative) of the root; |L|, the phase and |S| are then
+evaluated exactly at that rational and rounded once, so reported frequencies and margins are
+correct to double precision (relative error below 1e-13; a float polynomial evaluation would
+lose most digits next to a lightly damped pole). With dead time, gain crossovers stay exact;
+the unwrapped phase ψ(ω) = ∠L0(jω) - ωT is split exactly into monotone pieces (the zeros of
+dψ/dω are roots of a polynomial with rational coefficients, because T is rational), so every
+phase crossover is bracketed once and only once, then refined by scipy's ``brentq`` on a
+double-precision ψ (frequency relative error about 1e-14 times the conditioning of N and D
+there; phases within 1e-9 rad of a level at a stationary point count as touching it). The
+sensitivity peak with dead time is a maximum over a grid (200 points per decade, 32 per
+period of e^{-jωT}, 17 across every lightly damped pole or zero) refined by ``brentq`` on
+the exact derivative: the peak is accurate to about 1e-12 relative, but a resonance narrower
+than the grid spacing could be missed; past the grid, |L| is bounded exactly so that nothing
+there can exceed the peak found. Gain-set ends are sympy ``Float``s (15 digits): about 1e-12
+relative, 1e-7 where an end comes from a tangency (a double root), about 1e-10 for
+sensitivity-peak ends with dead time (a bounded Brent search). A float end is always open:
+within that accuracy the end itself is undecided.
 """
 
 from __future__ import annotations
@@ -97,16 +100,16 @@ class MarginsUnsupported(ValueError):
 class Margins:
     """Margins of a loop at one gain; floats in rad/s, dB, degrees, seconds (see module doc)."""
 
-    gain_margin: float | None
+    gain_margin: float | None  # absolute, 1/|L|; inf: no phase crossover; None: undefined
     gain_margin_db: float | None
-    phase_margin_deg: float | None
-    gain_crossovers: tuple[float, ...]
-    phase_crossovers: tuple[float, ...]
-    gain_crossover_rad_s: float | None
-    phase_crossover_rad_s: float | None
-    delay_margin_s: float | None
-    sensitivity_peak: float
-    sensitivity_peak_rad_s: float
+    phase_margin_deg: float | None  # governing, in (-180, 180]; inf: no gain crossover
+    gain_crossovers: tuple[float, ...]  # all, ascending
+    phase_crossovers: tuple[float, ...]  # all without dead time; with it, see the notes
+    gain_crossover_rad_s: float | None  # where the governing phase margin is
+    phase_crossover_rad_s: float | None  # where the governing gain margin is (inf: a limit)
+    delay_margin_s: float | None  # inf: no gain crossover; None: undefined (all-pass)
+    sensitivity_peak: float  # sup |1/(1 + L)|, inf when unbounded
+    sensitivity_peak_rad_s: float  # 0.0 or inf when the peak is a limit
     notes: tuple[str, ...]
 
 
