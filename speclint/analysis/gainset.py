@@ -16,10 +16,11 @@ from __future__ import annotations
 from collections.abc import Iterable
 from dataclasses import dataclass
 from fractions import Fraction
+from typing import TypeAlias
 
 import sympy
 
-Exact = sympy.Expr  # Rational, CRootOf, or +/-oo
+Exact: TypeAlias = sympy.Expr  # Rational, CRootOf, or +/-oo
 
 ZERO = sympy.Integer(0)
 INF = sympy.oo
