@@ -15,10 +15,15 @@ The two special cases are handled as the textbooks do and recorded in ``notes``:
 - a row of zeros is replaced by the derivative of the auxiliary polynomial formed from the
   row above; the roots of that polynomial are roots of p(s), symmetric about the origin.
 
-The number of right-half-plane roots is the number of sign changes in the first column.
-The number of imaginary-axis roots is always determined, exactly: every such root is a root
-of g = gcd(p(s), p(−s)) (the auxiliary polynomial of the table), which is even,
-g(s) = h(s²), and each negative real root w of h gives the pair s = ±j·√(−w).
+The root counts do not rest on the ε device, which can miscount when a row of zeros
+follows an ε (roots on the imaginary axis perturbed to either side). They are exact:
+g = gcd(p(s), p(−s)) holds every pair of roots z, −z (every imaginary-axis root among
+them; it is the table's auxiliary polynomial up to a factor). g is even, g(s) = h(s²): each
+negative real root w of h gives s = ±j·√(−w), each other root of g a pair ±z with one in
+the right half plane. The rest, p/g, has no such pairs, and its right-half-plane roots come
+from the Routh-Hurwitz theorem in Cauchy-index form evaluated by a Sturm sequence, which
+needs no ε. In the textbook cases the sign changes of the first column agree; where they do
+not, a note says so.
 
 Stable gain set (:func:`stable_gains`). The Routh table is built once over the field of
 rational functions in the gain k. Routh's theorem says P(s, k0) is Hurwitz exactly when
@@ -124,8 +129,15 @@ def routh_table(p: sympy.Poly) -> RouthTable:
     rows, powers, table_notes = _build_rows(coeffs)
     notes.extend(table_notes)
     signs = [_limit_sign(row[0]) for row in rows]
-    rhp = sum(1 for a, b in itertools.pairwise(signs) if a != b)
-    imaginary = zero_roots + _imaginary_roots(coeffs)
+    sign_changes = sum(1 for a, b in itertools.pairwise(signs) if a != b)
+    rhp, imaginary = _root_counts(coeffs)
+    imaginary += zero_roots
+    if sign_changes != rhp:
+        notes.append(
+            f"the first column changes sign {sign_changes} times, but ε next to roots on the "
+            "imaginary axis can miscount: the root counts come from gcd(p(s), p(−s)) and a "
+            "Sturm sequence instead"
+        )
     return RouthTable(
         coefficients=tuple(coeffs),
         rows=tuple(tuple(r) for r in rows),
@@ -253,8 +265,9 @@ def _lowest_sign(e: sympy.Expr) -> int:
     return 0
 
 
-def _imaginary_roots(coeffs: list[sympy.Rational]) -> int:
-    """Number of roots on the imaginary axis (with multiplicity), given p(0) ≠ 0."""
+def _root_counts(coeffs: list[sympy.Rational]) -> tuple[int, int]:
+    """(right-half-plane, imaginary-axis) root counts with multiplicity, given p(0) ≠ 0
+    and a positive leading coefficient."""
     p = sympy.Poly(coeffs, S, domain=sympy.QQ)
     mirrored = sympy.Poly(
         [c if (len(coeffs) - 1 - i) % 2 == 0 else -c for i, c in enumerate(coeffs)],
@@ -262,15 +275,55 @@ def _imaginary_roots(coeffs: list[sympy.Rational]) -> int:
         domain=sympy.QQ,
     )
     g = p.gcd(mirrored)
-    if g.degree() <= 0:
+    imaginary = 0
+    if g.degree() > 0:
+        # g(s) = g(−s) up to sign, and g(0) ≠ 0, so g is even: g(s) = h(s²); each negative
+        # root w of h gives s = ±j·√(−w), every other root of g a pair ±z, one with Re > 0.
+        h = sympy.Poly(g.all_coeffs()[0::2], W, domain=sympy.QQ)
+        for factor, multiplicity in h.sqf_list()[1]:
+            imaginary += 2 * multiplicity * factor.count_roots(None, 0)
+    rhp_symmetric = (g.degree() - imaginary) // 2
+    return rhp_symmetric + _sturm_right_half_plane(p.quo(g)), imaginary
+
+
+def _sturm_right_half_plane(q: sympy.Poly) -> int:
+    """Right-half-plane roots of q, which has no two roots z and −z (so none on the axis).
+
+    Routh-Hurwitz in Cauchy-index form (Gantmacher, The Theory of Matrices, vol. 2, ch. XV):
+    with q = a0·s^n + a1·s^(n−1) + ..., a0 > 0, the index over the real line of
+    (a1·ω^(n−1) − a3·ω^(n−3) + ...)/(a0·ω^n − a2·ω^(n−2) + ...) is n − 2k, k the number of
+    right-half-plane roots; Sturm's signed remainder sequence gives the index exactly,
+    whatever degree jumps (the first-column zeros of the table) it meets.
+    """
+    a = q.all_coeffs()
+    if a[0] < 0:
+        a = [-c for c in a]
+    n = len(a) - 1
+    if n == 0:
         return 0
-    # g(s) = g(−s) up to sign, and g(0) ≠ 0, so g is even: g(s) = h(s²).
-    g_coeffs = g.all_coeffs()
-    h = sympy.Poly(g_coeffs[0::2], W, domain=sympy.QQ)
-    count = 0
-    for factor, multiplicity in h.sqf_list()[1]:
-        count += multiplicity * factor.count_roots(None, 0)
-    return 2 * count
+    den = sympy.Poly(
+        [(-1) ** (i // 2) * a[i] if i % 2 == 0 else 0 for i in range(n + 1)], W, domain=sympy.QQ
+    )
+    num = sympy.Poly(
+        [(-1) ** (i // 2) * a[i] if i % 2 == 1 else 0 for i in range(1, n + 1)],
+        W,
+        domain=sympy.QQ,
+    )
+    sequence = [den, num]
+    while True:
+        r = -sequence[-2].rem(sequence[-1])
+        if r.is_zero:
+            break
+        sequence.append(r)
+    plus = [int(sympy.sign(f.LC())) for f in sequence]
+    minus = [sign * (-1) ** f.degree() for sign, f in zip(plus, sequence, strict=True)]
+    index = _variations(minus) - _variations(plus)
+    return (n - index) // 2
+
+
+def _variations(signs: list[int]) -> int:
+    nonzero = [x for x in signs if x]
+    return sum(1 for x, y in itertools.pairwise(nonzero) if x != y)
 
 
 # ----------------------------------------------------------------------- stable gain set
@@ -549,8 +602,8 @@ def _crossing_frequency(gain: Exact, factor: sympy.Poly, columns: list[sympy.Pol
         sympy.Integer(0),
     )
 
-    def size(omega: Exact) -> sympy.Float:
-        return sympy.Abs(p_at_gain.subs(W, omega)).evalf(50)
+    def size(omega: Exact) -> float:
+        return abs(complex(p_at_gain.subs(W, omega).evalf(50)))
 
     return min(distinct, key=size)
 
