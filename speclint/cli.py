@@ -75,7 +75,11 @@ def _parser(stdout: TextIO) -> argparse.ArgumentParser:
     )
     check.add_argument("--no-cache", action="store_true", help="analyse every loop afresh")
     check.add_argument(
-        "--jobs", "-j", type=int, default=0, metavar="N",
+        "--jobs",
+        "-j",
+        type=int,
+        default=0,
+        metavar="N",
         help="worker processes for the analysis (default: one per core when many loops need it)",
     )
     check.add_argument(

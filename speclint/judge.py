@@ -46,6 +46,8 @@ _EXPRESSION_RULES = {
     "division-by-zero": "SL304",
     "zero": "SL305",
 }
+# Margin notes that only describe how a figure was found; they stay out of the findings.
+_QUIET_NOTES = ("dead time: phase crossovers are listed", "the sensitivity peak is the limit")
 _STATUS_RULES = {"retune": "SL401", "unreachable": "SL402", "conflict": "SL403"}
 _CONSTANT_LABEL = {"kp": "Kp", "kv": "Kv", "ka": "Ka"}
 _MARGIN_LABEL = {
@@ -76,7 +78,9 @@ def unanalysed_loop(loop: Loop) -> LoopResult:
 
 def invalid(req: Requirement, why: str) -> RequirementResult:
     status = "invalid" if req.criteria else None
-    return RequirementResult(req.id, req.location.path, req.location.line or 0, req.loop, status, why)
+    return RequirementResult(
+        req.id, req.location.path, req.location.line or 0, req.loop, status, why
+    )
 
 
 def judge_loop(loop: Loop, requirements: list[Requirement]) -> Outcome:
@@ -144,7 +148,9 @@ def read_model(loop: Loop, found: list[Finding]) -> LoopAlgebra | None:
         return None
     if gain is not None and not any(_uses_gain(b) for b in blocks.values()):
         msg = f"loops.{loop.name}: the gain {gain.symbol} appears in no expression, so tuning it changes nothing"
-        found.append(finding("SL308", msg, loop.places.get("gain.symbol", loop.location), subject=loop.name))
+        found.append(
+            finding("SL308", msg, loop.places.get("gain.symbol", loop.location), subject=loop.name)
+        )
     return model
 
 
@@ -193,7 +199,11 @@ class _Figures:
                 )
         else:
             exact_set = stability.stable_gains(model)
-            stable, nominal_stable, note = exact_set.gains, exact_set.nominal_stable, exact_set.unsupported
+            stable, nominal_stable, note = (
+                exact_set.gains,
+                exact_set.nominal_stable,
+                exact_set.unsupported,
+            )
             if note is not None:
                 stable = None
         if note is not None:
@@ -205,8 +215,16 @@ class _Figures:
             if mode.unstable:
                 nominal_stable = False
         if nominal_stable is False:
-            at = f" at {symbol} = {format_number(_q(model.nominal))}" if model.nominal is not None else ""
-            where = f"; it is stable for {stable.describe(symbol)}" if stable is not None and model.nominal is not None else ""
+            at = (
+                f" at {symbol} = {format_number(_q(model.nominal))}"
+                if model.nominal is not None
+                else ""
+            )
+            where = (
+                f"; it is stable for {stable.describe(symbol)}"
+                if stable is not None and model.nominal is not None
+                else ""
+            )
             msg = f"loops.{loop.name}: the closed loop is unstable{at}{where}"
             place = loop.places.get("gain.nominal", loop.location)
             found.append(finding("SL404", msg, place, subject=loop.name))
@@ -218,7 +236,13 @@ class _Figures:
             found.append(finding("SL406", msg, loop.location, subject=loop.name))
         if found_margins is not None:
             for note_text in found_margins.notes:
-                found.append(finding("SL501", f"loops.{loop.name}: {note_text}", loop.location, subject=loop.name))
+                if note_text.startswith(_QUIET_NOTES):
+                    continue
+                found.append(
+                    finding(
+                        "SL501", f"loops.{loop.name}: {note_text}", loop.location, subject=loop.name
+                    )
+                )
         return _Figures(ss, stable, nominal_stable, note, found_margins)
 
     def result(self, loop: Loop, model: LoopAlgebra) -> LoopResult:
@@ -277,7 +301,7 @@ def _text(value: sympy.Expr, symbol: str | None = None) -> str:
         return "∞"
     if symbol is not None:
         value = value.subs(K, sympy.Symbol(symbol))
-    return sympy.sstr(value)
+    return str(sympy.sstr(value))
 
 
 def _floats(gains: GainSet) -> tuple[Interval, ...]:
@@ -384,7 +408,9 @@ def _margin_limits(crit: MarginLimits, model: LoopAlgebra, fig: _Figures) -> lis
             gains, reason = GainSet.empty(), f"margins not computed: {exc}"
         met = None
         if achieved is not None:
-            met = achieved <= float(bound) if key.startswith("max") else abs(achieved) >= float(bound)
+            met = (
+                achieved <= float(bound) if key.startswith("max") else abs(achieved) >= float(bound)
+            )
         out.append(
             _Limit(
                 "margins",
@@ -422,7 +448,9 @@ def _verdicts(
             )
             for req in analysed
         ]
-        decided = feasibility.judge_loop(model.nominal, fig.stable, asked, symbol, fig.nominal_stable)
+        decided = feasibility.judge_loop(
+            model.nominal, fig.stable, asked, symbol, fig.nominal_stable
+        )
         for req, verdict in zip(analysed, decided.verdicts, strict=True):
             criteria = tuple(
                 CriterionResult(
@@ -454,7 +482,9 @@ def _verdicts(
         if req.id in results:
             out.append(results[req.id])
         else:
-            out.append(RequirementResult(req.id, req.location.path, req.location.line or 0, req.loop, None))
+            out.append(
+                RequirementResult(req.id, req.location.path, req.location.line or 0, req.loop, None)
+            )
     return out
 
 

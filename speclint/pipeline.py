@@ -160,7 +160,9 @@ def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
         with time_budget(LOOP_BUDGET_S):
             outcome = judge.judge_loop(loop, requirements)
     except BudgetExceeded:
-        msg = f"loops.{loop.name}: the analysis took longer than {LOOP_BUDGET_S:g} s and was stopped"
+        msg = (
+            f"loops.{loop.name}: the analysis took longer than {LOOP_BUDGET_S:g} s and was stopped"
+        )
         hint = "simplify the model (lower degree, fewer constants) or report it if it is ordinary"
         stopped = finding("SL407", msg, loop.location, hint, subject=loop.name)
         why = "the loop's analysis was stopped (time budget)"

@@ -105,7 +105,9 @@ def _holds(criterion: dict, c, g, h) -> bool:
         err = _steady_error(c, g, h, criterion["reference"], float(criterion["magnitude"]))
         return abs(err) <= required * (1 + 1e-9)
     if kind == "error_constants":
-        ge = control.minreal(control.feedback(c * g, h) / (1 - control.feedback(c * g, h)), verbose=False)
+        ge = control.minreal(
+            control.feedback(c * g, h) / (1 - control.feedback(c * g, h)), verbose=False
+        )
         s = control.tf("s")
         order = {"kp": 0, "kv": 1, "ka": 2}[criterion["constant"]]
         value = float(np.real(control.dcgain(control.minreal(ge * s**order, verbose=False))))
@@ -143,7 +145,11 @@ def test_every_demo_admissible_interval_is_right_by_python_control(report):
         for lo, hi in req["admissible_gains"] or []:
             lo = 0.0 if lo in ("-inf",) else float(lo)
             hi = math.inf if hi == "inf" else float(hi)
-            inside = math.sqrt(lo * hi) if lo > 0 and math.isfinite(hi) else (lo + 1 if math.isinf(hi) else hi / 2)
+            inside = (
+                math.sqrt(lo * hi)
+                if lo > 0 and math.isfinite(hi)
+                else (lo + 1 if math.isinf(hi) else hi / 2)
+            )
             model = _model(loop, inside)
             assert _stable(*model), (req["id"], inside)
             assert all(_holds(c, *model) for c in req["criteria"]), (req["id"], inside)

@@ -41,6 +41,8 @@ COLUMNS = (
     "evidence",
     "review",
 )
+# Detail keys the analysis adds for other reports; the matrix has its own columns for them.
+_ANALYSIS_ONLY = frozenset({"label", "admissible_text", "limit"})
 _LABELS = {
     "gain_margin_db": "gain margin",
     "phase_margin_deg": "phase margin",
@@ -231,7 +233,13 @@ def _rows(
     )
     rows = [head]
     analysed = verdict.criteria if verdict is not None else ()
-    if analysed:
+    if analysed and len(analysed) == len(node.criteria):
+        # The spec's own words for each limit (with its unit) beside what the analysis found.
+        rows += [
+            _analysed_row(c, symbol, stated)
+            for c, stated in zip(analysed, node.criteria, strict=True)
+        ]
+    elif analysed:
         rows += [_analysed_row(c, symbol) for c in analysed]
     else:
         rows += [_stated_row(c) for c in node.criteria]
@@ -241,6 +249,8 @@ def _rows(
 def _label(kind: str, detail: dict[str, str]) -> str:
     words = [kind.replace("_", " ")]
     for key, value in sorted(detail.items()):
+        if key in _ANALYSIS_ONLY:
+            continue
         if key == "magnitude":
             words.append(f"step {value}")
         else:
@@ -252,16 +262,21 @@ def _stated_row(c: TraceCriterion) -> Row:
     return ("", "", _label(c.kind, c.detail), text(c.required), "—", "—", "—", "", "", "")
 
 
-def _analysed_row(c: CriterionResult, symbol: str | None) -> Row:
+def _analysed_row(
+    c: CriterionResult, symbol: str | None, stated: TraceCriterion | None = None
+) -> Row:
     relation = "≤" if c.kind in ("tracking", "disturbance") else "≥"
     if c.detail.get("margin") == "sensitivity_peak":
         relation = "≤"
     required = f"{relation} {number(c.required)}" if c.required is not None else "—"
+    label = _label(c.kind, c.detail)
+    if stated is not None:
+        label, required = _label(stated.kind, stated.detail), text(stated.required)
     met = {True: "met", False: "not met", None: "—"}[c.met]
     return (
         "",
         "",
-        _label(c.kind, c.detail),
+        label,
         required,
         number(c.achieved),
         gains(c.admissible_gains, symbol),
