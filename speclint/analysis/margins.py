@@ -75,6 +75,7 @@ import numpy.typing as npt
 import sympy
 from scipy.optimize import brentq
 
+from speclint.analysis import realroots
 from speclint.analysis.algebra import K, LoopAlgebra, S, at_gain, loop_transfer
 from speclint.analysis.gainset import INF, GainSet, Interval
 
@@ -176,11 +177,25 @@ def _root_value(p: sympy.Poly, a: sympy.Rational, b: sympy.Rational) -> sympy.Ra
     return (a + b) / 2
 
 
+def _ints(p: sympy.Poly) -> list[int]:
+    """p's coefficients (rational, highest power first) scaled to coprime integers."""
+    return realroots.integer_coefficients(
+        [Fraction(int(c.numerator), int(c.denominator)) for c in p.rep.to_list()]
+    )
+
+
+def _rational(x: Fraction) -> sympy.Rational:
+    return sympy.Rational(x.numerator, x.denominator)
+
+
 def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[sympy.Rational]:
     """Distinct real roots x ≥ 0 (x > 0 unless `include_zero`) of p, sorted, each as a
     rational within 1e-20 (relative) of the root."""
     if p.is_zero or p.degree() <= 0:
         return []
+    fast = realroots.positive_roots(_ints(p), include_zero)
+    if fast is not None:
+        return [_rational(x) for x in fast]
     out: list[sympy.Rational] = []
     for (a, b), _mult in p.intervals():
         if a == b == 0:
@@ -209,6 +224,9 @@ def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[sympy.Rational,
     out: list[tuple[sympy.Rational, int]] = []
     if q.is_zero or q.degree() <= 0:
         return out
+    fast = realroots.positive_roots_with_sign(_ints(q), _ints(p))
+    if fast is not None:
+        return [(_rational(x), sign) for x, sign in fast]
     for (a, b), _mult in q.intervals():
         if b <= 0:
             continue
@@ -1306,6 +1324,9 @@ def _ms_candidates_exact(resp: _Resp, peak: Fraction) -> list[float]:
 
 
 def _positive_roots(p: sympy.Poly) -> list[float]:
+    fast = realroots.positive_roots(_ints(p))
+    if fast is not None:
+        return [float(x) for x in fast]
     out = []
     for (a, b), _m in p.intervals():
         if b > 0:
