@@ -364,16 +364,27 @@ class StableSet:
     at ``loop.nominal`` (for a loop without gain: its one verdict), None when not decided.
     ``unsupported`` says why the set could not be computed; ``gains`` is then empty and
     must not be read as "unstable".
+
+    ``boundaries`` are classified when read, not when the set is computed: finding each
+    crossing frequency ω0 (resultants, a 50-digit choice) costs more than the whole set,
+    and ``speclint check`` never shows them. ``ends`` keeps what that needs: each end the
+    loop sets with its irreducible polynomial, and ``columns`` the coefficients in s.
     """
 
     gains: GainSet
-    boundaries: tuple[Boundary, ...]
     nominal_stable: bool | None
     nominal_table: RouthTable | None
     depends_on_gain: bool
     first_column: tuple[sympy.Expr, ...] = ()
     notes: tuple[str, ...] = ()
     unsupported: str | None = None
+    ends: tuple[tuple[Exact, sympy.Poly], ...] = ()
+    columns: tuple[sympy.Poly, ...] = ()
+
+    @property
+    def boundaries(self) -> tuple[Boundary, ...]:
+        """How a root crosses at each end of the stable intervals that the loop sets."""
+        return tuple(_classify(gain, factor, list(self.columns)) for gain, factor in self.ends)
 
 
 def stable_gains(loop: LoopAlgebra) -> StableSet:
@@ -384,7 +395,6 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
     if loop.delay:
         return StableSet(
             gains=GainSet.empty(),
-            boundaries=(),
             nominal_stable=None,
             nominal_table=None,
             depends_on_gain=depends,
@@ -399,7 +409,6 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
     if degree > MAX_DEGREE:
         return StableSet(
             gains=GainSet.empty(),
-            boundaries=(),
             nominal_stable=None,
             nominal_table=None,
             depends_on_gain=depends,
@@ -421,7 +430,6 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         verdict = bool(nominal_stable)
         return StableSet(
             gains=domain if verdict else GainSet.empty(),
-            boundaries=(),
             nominal_stable=verdict,
             nominal_table=nominal_table,
             depends_on_gain=False,
@@ -432,7 +440,6 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
-            boundaries=(),
             nominal_stable=nominal_stable,
             nominal_table=nominal_table,
             depends_on_gain=True,
@@ -455,25 +462,25 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         if ok
     ]
     gains = GainSet.of(pieces).intersect(domain)
-    boundaries = tuple(
-        _classify(gain, factor, columns)
+    ends_set = tuple(
+        (gain, factor)
         for i, (gain, factor) in enumerate(candidates)
         if (verdicts[i] or verdicts[i + 1]) and domain.contains(gain)
     )
     return StableSet(
         gains=gains,
-        boundaries=boundaries,
         nominal_stable=nominal_stable,
         nominal_table=nominal_table,
         depends_on_gain=True,
         first_column=column_exprs,
+        ends=ends_set,
+        columns=tuple(columns),
     )
 
 
 def _nowhere_stable(depends: bool, note: str) -> StableSet:
     return StableSet(
         gains=GainSet.empty(),
-        boundaries=(),
         nominal_stable=False,
         nominal_table=None,
         depends_on_gain=depends,
