@@ -66,7 +66,7 @@ import bisect
 import cmath
 import itertools
 import math
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 from functools import lru_cache
@@ -1103,7 +1103,7 @@ def margins_at(loop: LoopAlgebra, k: Fraction | None) -> Margins:
 # Closed-loop stability with dead time: the Nyquist criterion, the delay taken exactly
 
 
-def _unstable_roots(hits: list[_Hit], open_rhp: int, kappa: float) -> int:
+def _unstable_roots(hits: Sequence[_Hit], open_rhp: int, kappa: float) -> int:
     """Z = P + N: closed-loop right-half-plane roots at gain factor kappa.
 
     Each passage of κL(jω) through the real axis left of -1 turns 1 + κL once about the
@@ -1118,7 +1118,8 @@ def _unstable_roots(hits: list[_Hit], open_rhp: int, kappa: float) -> int:
     return round(z)
 
 
-def _nyquist_hits(resp: _Resp, upper: float) -> tuple[list[_Hit], float]:
+@lru_cache(maxsize=256)
+def _nyquist_hits(resp: _Resp, upper: float) -> tuple[tuple[_Hit, ...], float]:
     """Passages of the phase through -180° that matter for gains below `upper`, and the gain
     above which the loop is unstable for every gain (inf when there is none).
 
@@ -1139,8 +1140,8 @@ def _nyquist_hits(resp: _Resp, upper: float) -> tuple[list[_Hit], float]:
                 highest = max(highest, gain)
             continue
         if gain is not None and gain > highest:
-            return hits, gain
-    return hits, math.inf
+            return tuple(hits), gain
+    return tuple(hits), math.inf
 
 
 def _float_end(x: float) -> sympy.Expr:
