@@ -14,6 +14,7 @@ import dataclasses
 import hashlib
 import json
 import os
+import shutil
 import tempfile
 from fractions import Fraction
 from pathlib import Path
@@ -79,6 +80,10 @@ class Cache:
             text = json.dumps(entry, allow_nan=True)
             path = self._path(key)
             path.parent.mkdir(parents=True, exist_ok=True)
+            if path.is_dir() and not path.is_symlink():
+                # Something else's folder where an entry belongs: entries are rewritten,
+                # and this name (a hash inside our own folder) is ours.
+                shutil.rmtree(path)
             self._ignore_in_git()
             fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".entry.", suffix=".tmp")
             try:

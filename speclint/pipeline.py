@@ -141,8 +141,16 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
 
 def default_jobs(loops_to_analyse: int) -> int:
     """Worker processes: one per core once there are enough loops to repay starting them."""
-    cores = os.cpu_count() or 1
-    return cores if loops_to_analyse >= 24 else 1
+    return usable_cores() if loops_to_analyse >= 24 else 1
+
+
+def usable_cores() -> int:
+    """The cores this process may run on: its affinity mask where the system has one (a
+    container or `taskset` may allow fewer than the machine has)."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        return os.cpu_count() or 1
 
 
 def _has_internal_error(analysed: Analysed) -> bool:
