@@ -11,6 +11,7 @@ temporary file and renamed, so concurrent runs cannot leave half an entry behind
 from __future__ import annotations
 
 import dataclasses
+import functools
 import hashlib
 import json
 import os
@@ -28,10 +29,31 @@ from speclint.results import CriterionResult, LoopResult, RequirementResult
 ENTRY_FORMAT = 1
 
 
+@functools.cache
+def code_fingerprint() -> str:
+    """A hash of speclint's own code and schemas (about 2 ms): a working tree whose analysis
+    changed gets fresh entries even though its version number did not."""
+    digest = hashlib.sha256(__version__.encode())
+    package = Path(__file__).resolve().parent
+    try:
+        for path in sorted([*package.rglob("*.py"), *package.rglob("*.json")]):
+            digest.update(str(path.relative_to(package)).encode() + b"\0" + path.read_bytes())
+    except OSError:
+        digest.update(b"unreadable")  # still a key; an installed package does not change
+    return digest.hexdigest()
+
+
+def file_key(shown: str, raw: bytes) -> str:
+    """The key of a spec file's validation: its bytes, the path findings point at, the code."""
+    digest = hashlib.sha256(f"validation\0{code_fingerprint()}\0{shown}\0".encode())
+    digest.update(raw)
+    return digest.hexdigest()
+
+
 def loop_key(loop: Loop, requirements: list[Requirement]) -> str:
-    """A hash of all the analysis of `loop` depends on, and of this speclint's version."""
+    """A hash of all the analysis of `loop` depends on, and of speclint's code."""
     payload = {
-        "speclint": __version__,
+        "speclint": code_fingerprint(),
         "entry": ENTRY_FORMAT,
         "loop": dataclasses.asdict(loop),
         "requirements": [dataclasses.asdict(r) for r in requirements],
@@ -66,6 +88,27 @@ class Cache:
             return None
         return loop, reqs, found
 
+    def get_validation(self, key: str) -> tuple[list[Finding], set[DataPath]] | None:
+        """A spec file's validation findings and flagged paths, stored under `key`."""
+        try:
+            entry = json.loads(self._path(key).read_text(encoding="utf-8"))
+            if entry.get("key") != key or entry.get("format") != ENTRY_FORMAT:
+                return None
+            found = [_finding_from(f) for f in entry["validation"]]
+            flagged = {_data_path(p) for p in entry["flagged"]}
+        except (OSError, ValueError, KeyError, TypeError, AttributeError):
+            return None
+        return found, flagged
+
+    def put_validation(self, key: str, found: list[Finding], flagged: set[DataPath]) -> None:
+        entry = {
+            "format": ENTRY_FORMAT,
+            "key": key,
+            "validation": [_finding_to(f) for f in found],
+            "flagged": sorted(([*p] for p in flagged), key=repr),
+        }
+        self._write(key, entry)
+
     def put(
         self, key: str, loop: LoopResult, reqs: list[RequirementResult], found: list[Finding]
     ) -> None:
@@ -76,6 +119,9 @@ class Cache:
             "requirements": [dataclasses.asdict(r) for r in reqs],
             "findings": [_finding_to(f) for f in found],
         }
+        self._write(key, entry)
+
+    def _write(self, key: str, entry: dict[str, Any]) -> None:
         try:
             text = json.dumps(entry, allow_nan=True)
             path = self._path(key)
@@ -102,6 +148,17 @@ class Cache:
         marker = self.folder / ".gitignore"
         if not marker.exists():
             marker.write_text("# written by speclint: the analysis cache is not for git\n*\n")
+
+
+DataPath = tuple[str | int, ...]
+
+
+def _data_path(value: Any) -> DataPath:
+    if not isinstance(value, list) or not all(
+        isinstance(p, str | int) and not isinstance(p, bool) for p in value
+    ):
+        raise TypeError("not a data path")
+    return tuple(value)
 
 
 def _finding_to(f: Finding) -> dict[str, Any]:

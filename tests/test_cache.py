@@ -59,7 +59,8 @@ def test_warm_run_is_byte_identical_and_analyses_nothing(demo, monkeypatch):
     code, cold = _check()
     assert cold == fresh
     loops = len(json.loads(cold)["loops"])
-    assert len(_entries(demo)) == loops > 0
+    files = len(list((demo / "examples").glob("*.yaml")))
+    assert len(_entries(demo)) == loops + files and loops > 0  # an entry per loop, per file
     _no_analysis(monkeypatch)
     code_warm, warm = _check()
     assert (code_warm, warm) == (code, cold)
