@@ -524,7 +524,8 @@ def _symbolic_first_column(
 ) -> tuple[list[Any], int | None]:
     """Routh first column over Q(k); also the power of the row whose entry is ≡ 0, if any."""
     n = len(columns) - 1
-    elems = [_FIELD.from_expr(c.as_expr()) for c in columns]
+    # Straight from the coefficients: the same field elements as from_expr(as_expr()).
+    elems = [_FIELD.field_new(_FIELD.ring.from_dict(c.as_dict(native=True))) for c in columns]
     width = n // 2 + 1
     zero = _FIELD.zero
     prev = elems[0::2] + [zero] * (width - len(elems[0::2]))
@@ -546,7 +547,7 @@ def _candidates(first_column: list[Any]) -> list[tuple[Exact, sympy.Poly]]:
     factors: dict[tuple[object, ...], sympy.Poly] = {}
     for f in first_column:
         for part in (f.numer, f.denom):
-            poly = sympy.Poly(part.as_expr(), K, domain=sympy.QQ)
+            poly = sympy.Poly.from_dict(dict(part) or {(0,): 0}, K, domain=sympy.QQ)
             if poly.degree() <= 0:
                 continue
             for factor, _ in poly.factor_list()[1]:
