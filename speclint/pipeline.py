@@ -137,8 +137,12 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
     cache = Cache(config.root / config.cache_dir) if options.use_cache else None
     work: list[tuple[int, Loop, list[Requirement], str | None]] = []
     out: list[Analysed | None] = []
+    by_loop: dict[str, list[Requirement]] = {}
+    for req in found.requirements:
+        if req.loop is not None:
+            by_loop.setdefault(req.loop, []).append(req)
     for loop in found.loops.values():
-        mine = [r for r in found.requirements if r.loop == loop.name]
+        mine = by_loop.get(loop.name, [])
         key = loop_key(loop, mine) if cache is not None else None
         hit = cache.get(key) if cache is not None and key is not None else None
         out.append(hit)
