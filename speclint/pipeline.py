@@ -152,6 +152,10 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
     if jobs > 1 and len(work) > 1:
         from concurrent.futures import ProcessPoolExecutor
 
+        # Import the analysis before the workers are forked: they then start at once and
+        # share the libraries' pages with this process instead of each loading its own.
+        from speclint import judge  # noqa: F401
+
         with ProcessPoolExecutor(max_workers=jobs) as pool:
             done = list(pool.map(analyse_loop, [(w[1], w[2]) for w in work], chunksize=4))
     else:
@@ -187,6 +191,7 @@ def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
     # Imported here: the analysis needs sympy and numpy, which a run that only validates
     # (or finds everything in the cache) must not pay for.
     from speclint import judge
+    from speclint.analysis import forget
 
     try:
         with time_budget(LOOP_BUDGET_S):
@@ -203,6 +208,8 @@ def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
         bug = internal_error(loop.location.path, exc)
         why = "internal error"
         return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [bug]
+    finally:
+        forget()  # per-loop memo caches: a worker's memory stays that of one loop
     return outcome.loop, outcome.requirements, outcome.findings
 
 
