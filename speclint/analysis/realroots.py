@@ -230,13 +230,21 @@ def _exact_or_middle(p: Sequence[int], lo: Fraction, hi: Fraction) -> Fraction:
 
 
 def _simplest_between(lo: Fraction, hi: Fraction) -> Fraction:
-    """The rational with the smallest denominator in [lo, hi], 0 < lo ≤ hi (Stern-Brocot)."""
-    floor = lo.numerator // lo.denominator
-    if floor == lo or floor + 1 <= hi:
-        return Fraction(floor if floor == lo else floor + 1)
-    # lo and hi share the integer part: recurse on the reciprocals of the fractional parts.
-    inner = _simplest_between(1 / (hi - floor), 1 / (lo - floor))
-    return floor + 1 / inner
+    """The rational with the smallest denominator in [lo, hi], 0 < lo ≤ hi (Stern-Brocot,
+    by the continued fraction both ends share; a loop, not recursion: the fraction can
+    be thousands of terms long)."""
+    parts: list[int] = []
+    while True:
+        floor = lo.numerator // lo.denominator
+        if floor == lo or floor + 1 <= hi:
+            value = Fraction(floor if floor == lo else floor + 1)
+            break
+        # lo and hi share the integer part: go on with the reciprocals of the remainders.
+        parts.append(floor)
+        lo, hi = 1 / (hi - floor), 1 / (lo - floor)
+    for floor in reversed(parts):
+        value = floor + 1 / value
+    return value
 
 
 def _dyadic_below(x: Fraction, centre: Fraction) -> Fraction:
