@@ -212,6 +212,17 @@ def test_routh_row_of_zeros() -> None:
     assert table.stable is False and is_hurwitz(p) is False
 
 
+def test_epsilon_followed_by_a_row_of_zeros_is_counted_exactly() -> None:
+    # (s³ + s − 1)(s² + 1): a first-column zero, then a row of zeros; the ε table's sign
+    # changes say 3, numpy.roots says one right-half-plane root and two on the axis.
+    p = upoly((S**3 + S - 1) * (S**2 + 1))
+    table = routh_table(p)
+    roots = np.roots(float_coeffs(p.as_expr()))
+    assert table.rhp == int(np.sum(roots.real > 1e-9)) == 1
+    assert table.imaginary == int(np.sum(np.abs(roots.real) < 1e-9)) == 2
+    assert any("Sturm" in note for note in table.notes)
+
+
 @pytest.mark.parametrize(
     ("expr", "hurwitz"),
     [
