@@ -11,6 +11,7 @@ temporary file and renamed, so concurrent runs cannot leave half an entry behind
 from __future__ import annotations
 
 import dataclasses
+import functools
 import hashlib
 import json
 import os
@@ -27,10 +28,24 @@ from speclint.results import CriterionResult, LoopResult, RequirementResult
 ENTRY_FORMAT = 1
 
 
+@functools.cache
+def code_fingerprint() -> str:
+    """A hash of the code that computes verdicts, so an edited checkout never reuses
+    answers an older version of that code gave (the version number alone would)."""
+    package = Path(__file__).resolve().parent
+    digest = hashlib.sha256(__version__.encode())
+    for path in sorted([*package.glob("*.py"), *(package / "analysis").glob("*.py")]):
+        try:
+            digest.update(path.name.encode() + path.read_bytes())
+        except OSError:
+            digest.update(path.name.encode())
+    return digest.hexdigest()
+
+
 def loop_key(loop: Loop, requirements: list[Requirement]) -> str:
-    """A hash of all the analysis of `loop` depends on, and of this speclint's version."""
+    """A hash of all the analysis of `loop` depends on, and of the code that analyses it."""
     payload = {
-        "speclint": __version__,
+        "speclint": code_fingerprint(),
         "entry": ENTRY_FORMAT,
         "loop": dataclasses.asdict(loop),
         "requirements": [dataclasses.asdict(r) for r in requirements],
