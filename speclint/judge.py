@@ -345,6 +345,8 @@ def _tracking(crit: Tracking, model: LoopAlgebra, fig: _Figures, stable: bool) -
     error = steady.tracking_error(fig.steady, ref, r)
     label = f"{ref} error ≤ {_num(limit)}"
     detail = {"reference": ref, "magnitude": _num(r)}
+    if stable:
+        detail["achieved_exact"] = _text(error)
     if crit.percent is not None:
         detail["limit"] = f"{_num(crit.percent)}% of R"
     return _Limit(
@@ -374,7 +376,7 @@ def _constants(crit: ErrorConstants, model: LoopAlgebra, fig: _Figures) -> list[
                 float(minimum),
                 to_float(value),
                 bool(value >= _qq(minimum)),
-                {"constant": which},
+                {"constant": which, "achieved_exact": _text(value)},
             )
         )
     return out
@@ -390,7 +392,8 @@ def _disturbance(crit: Disturbance, model: LoopAlgebra, stable: bool) -> _Limit:
         float(crit.max_error),
         to_float(deviation) if stable else None,
         bool(abs(deviation) <= _qq(crit.max_error)) if stable else None,
-        {"input": crit.input, "magnitude": _num(crit.magnitude)},
+        {"input": crit.input, "magnitude": _num(crit.magnitude)}
+        | ({"achieved_exact": _text(deviation)} if stable else {}),
     )
 
 

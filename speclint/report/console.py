@@ -200,7 +200,11 @@ def _criterion(c: CriterionResult) -> Text:
     label = c.detail.get("label") or c.kind.replace("_", " ")
     mark = "✓" if c.met else ("✗" if c.met is False else "·")
     style = "green" if c.met else ("red" if c.met is False else "dim")
-    text = Text(mark, style=style) + Text(f" {safe(label)}: achieved {number(c.achieved)}")
+    achieved = number(c.achieved)
+    exact = c.detail.get("achieved_exact")
+    if exact and exact not in (achieved, "∞") and len(exact) <= 24:
+        achieved = f"{safe(exact)} ≈ {achieved}"
+    text = Text(mark, style=style) + Text(f" {safe(label)}: achieved {achieved}")
     if "admissible_text" in c.detail:
         text.append(f"; holds, stably, for {safe(c.detail['admissible_text'])}", style="dim")
     return text
