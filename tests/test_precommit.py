@@ -33,7 +33,7 @@ requirements:
   - id: BELT-010
     loop: belt
     traces_to: [SYS-1]
-    tracking: {reference: ramp, magnitude: 500, max_error: 0.8}
+    tracking: {reference: ramp, magnitude: 500, max_error: 2}
     verification: {method: analysis}
   - id: SYS-1
     origin: customer list, item 1
