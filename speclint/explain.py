@@ -379,6 +379,11 @@ def _show(expr: sympy.Expr) -> str:
     return str(sympy.sstr(expr)).replace("**", "^")
 
 
+def _powers(text: str) -> str:
+    """Notes from the analysis write powers as sympy does; here they read as elsewhere."""
+    return text.replace("**", "^")
+
+
 def _named(expr: sympy.Expr, symbol: str | None) -> sympy.Expr:
     return expr.subs(K, sympy.Symbol(symbol)) if symbol else expr
 
@@ -479,8 +484,8 @@ def polynomial_text(p: sympy.Poly, symbol: str | None) -> str:
         coeff = _named(by_power[power], symbol)
         if coeff == 0:
             continue
-        if isinstance(coeff, sympy.Add):
-            text = f"({_show(coeff)})" + (f"*{_show(S**power)}" if power else "")
+        if power and isinstance(coeff, sympy.Add):
+            text = f"({_show(coeff)})*{_show(S**power)}"
         else:
             text = _show(coeff * S**power)
         terms.append(text)
@@ -638,7 +643,7 @@ def _stability(loop: Loop, w: judge.Workings) -> Stability:
             for i, entry in enumerate(routh.first_column)
         )
         boundaries = tuple(_boundary(b) for b in routh.boundaries)
-        notes = routh.notes
+        notes = tuple(_powers(n) for n in routh.notes)
     return Stability(
         method="Routh-Hurwitz",
         characteristic=polynomial_text(algebra.characteristic(model), symbol),
@@ -668,7 +673,7 @@ def _routh_view(table: stability.RouthTable, nominal: Fraction | None) -> RouthV
             RouthRow(power, tuple(_show(x) for x in row))
             for power, row in zip(table.powers, table.rows, strict=True)
         ),
-        special_cases=table.notes,
+        special_cases=tuple(_powers(n) for n in table.notes),
         signs=signs,
         sign_changes=changes,
         right_half_plane_roots=table.rhp,
@@ -763,8 +768,8 @@ def _together(w: judge.Workings, requirements: list[Requirement], symbol: str) -
         if nominal is not None:
             inside = decided.together.contains(nominal)
             at = f"; the nominal gain {symbol} = {_exact(exact(nominal))} is {'inside' if inside else 'outside'}"
-        every = "the one requirement" if count == 1 else f"all {count} requirements"
-        return Together(gains, f"{every} hold for {gains.text}{at}")
+        every = "the one requirement holds" if count == 1 else f"all {count} requirements hold"
+        return Together(gains, f"{every} for {gains.text}{at}")
     if decided.conflict is not None:
         return Together(gains, f"no gain satisfies them all: {decided.conflict.message}")
     unreachable = [v.id for v in decided.verdicts if v.admissible.is_empty()]

@@ -322,5 +322,8 @@ def _criterion(c: CriterionView) -> list[str]:
     if c.reason:
         out.append(f"      why none: {safe(c.reason)}")
     if c.admissible is not None:
-        out.append(f"      admissible (∩ stable gains): {c.admissible.text}")
+        exactly = (
+            "" if c.admissible.exact == c.admissible.text else f" (exactly {c.admissible.exact})"
+        )
+        out.append(f"      admissible (∩ stable gains): {c.admissible.text}{exactly}")
     return out
