@@ -242,13 +242,14 @@ def _explain(args: argparse.Namespace, stdout: TextIO) -> int:
 
     from speclint.explain import Refusal, as_json, explain
     from speclint.report import CAUTION
+    from speclint.report.console import safe
     from speclint.report.explain_console import render
 
     cwd = Path.cwd()
     config = find_config(cwd, Path(args.config) if args.config else None)
     item = explain(config, args.name, args.paths, cwd)
     if isinstance(item, Refusal) and item.usage:
-        raise UsageError(f"explain: {item.message}")
+        raise UsageError(f"explain: {safe(item.message)}")
     if args.format == "json":
         document = as_json(item, __version__, CAUTION)
         stdout.write(json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n")

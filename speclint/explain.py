@@ -280,15 +280,32 @@ def explain(config: Config, name: str, given: list[str], cwd: Path) -> Explanati
     if workings is None:
         errors = tuple(f for f in outcome.findings if f.severity is Severity.ERROR)
         return Refusal(f"loop {loop.name!r} cannot be analysed", usage=False, findings=errors)
+    try:
+        # Writing out the exact forms factors polynomials: a budget of its own, as above.
+        with time_budget(LOOP_BUDGET_S):
+            return _lay_out(loop, mine, requirement, name, outcome, workings, read.findings)
+    except BudgetExceeded:
+        msg = f"loops.{loop.name}: writing out the exact forms took longer than {LOOP_BUDGET_S:g} s"
+        stopped = finding("SL407", msg, loop.location, subject=loop.name)
+        return Refusal(f"loop {loop.name!r} cannot be explained", usage=False, findings=(stopped,))
+
+
+def _lay_out(
+    loop: Loop,
+    mine: list[Requirement],
+    requirement: Requirement | None,
+    name: str,
+    outcome: judge.Outcome,
+    workings: judge.Workings,
+    read_findings: list[Finding],
+) -> Explanation:
     subject: Literal["loop", "requirement"] = "loop" if requirement is None else "requirement"
     shown = mine if requirement is None else [requirement]
     results = {r.id: r for r in outcome.requirements}
     verdicts: dict[str, feasibility.Verdict] = {}
     if workings.feasibility is not None:
-        with_criteria = [r for r in mine if r.criteria]
-        verdicts = dict(
-            zip([r.id for r in with_criteria], workings.feasibility.verdicts, strict=True)
-        )
+        with_criteria = [r.id for r in mine if r.criteria]
+        verdicts = dict(zip(with_criteria, workings.feasibility.verdicts, strict=True))
     symbol = workings.model.gain_symbol or "K"
     return Explanation(
         head=_head(subject, name, loop),
@@ -305,7 +322,7 @@ def explain(config: Config, name: str, given: list[str], cwd: Path) -> Explanati
         together=_together(workings, mine, symbol),
         findings=tuple(
             f
-            for f in (*_loop_findings(loop.name, read.findings), *outcome.findings)
+            for f in (*_loop_findings(loop.name, read_findings), *outcome.findings)
             if f.rule not in _VERDICT_RULES
         ),
     )
