@@ -144,6 +144,10 @@ def _steady(s: Steady, k: str, nominal: Number | None) -> list[str]:
         else:
             line += f" = {_both(c.at_nominal)}"
         out.append(line)
+    if k in {c.name for c in s.constants}:
+        out.append(
+            f"  (here the gain is also called {safe(k)}; inside the formulas, {safe(k)} is the gain)"
+        )
     errors = ", ".join(f"{name} {_both(value)}" for name, value in s.unit_errors)
     out.append(f"  final error e(∞) for a unit reference{at}: {errors}")
     out.append("  (error figures hold only where the closed loop is stable)")
