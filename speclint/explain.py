@@ -451,6 +451,15 @@ def ratio_text(num: sympy.Poly, den: sympy.Poly, symbol: str | None) -> str:
     c_num, f_num = num.factor_list()
     c_den, f_den = den.factor_list()
     c = sympy.Rational(c_num) / sympy.Rational(c_den)
+    if c < 0:
+        # Carry the sign into a sum of odd power: K/(1 - K) reads better than -K/(K - 1).
+        for factors in (f_den, f_num):
+            odd = [i for i, (f, m) in enumerate(factors) if m % 2 and len(f.terms()) > 1]
+            if odd:
+                f, m = factors[odd[-1]]
+                factors[odd[-1]] = (-f, m)
+                c = -c
+                break
     sign = "-" if c < 0 else ""
     top = _factors(int(abs(c.p)), f_num, symbol)
     bottom = _factors(int(c.q), f_den, symbol) if f_den or c.q != 1 else []
@@ -476,7 +485,8 @@ def rational_text(expr: sympy.Expr, symbol: str | None) -> str:
     scale = sympy.Rational(k_den) / sympy.Rational(k_num)
     top = _named(p_num.as_expr() * scale.p, symbol)
     bottom = _named(p_den.as_expr() * scale.q, symbol)
-    if bottom.is_negative:
+    lone_minus = not isinstance(top, sympy.Add) and top.could_extract_minus_sign()
+    if bottom.is_negative or (isinstance(bottom, sympy.Add) and lone_minus):
         top, bottom = -top, -bottom
     top_text = _show(top)
     if bottom == 1:

@@ -325,3 +325,18 @@ def test_explain_and_check_agree_on_the_demo() -> None:
     assert shown["margins"]["phase_margin_deg"] == loop["margins"]["phase_margin_deg"]
     statuses = {r["id"]: r["status"] for r in report["requirements"] if r["loop"] == "film-feed"}
     assert {r["id"]: r["status"] for r in shown["requirements"]} == statuses
+
+
+def test_exact_forms_carry_a_sign_into_a_sum() -> None:
+    import sympy
+
+    from speclint.analysis.algebra import K, S, poly
+    from speclint.explain import ratio_text, rational_text
+
+    # By hand: with L = K(s + 2)/(s + 1) and H = 3/(s + 3), 1 + L(H − 1) has numerator
+    # (1 − K)s² + (4 − 2K)s + 3, so Ge = K(s + 2)(s + 3)/((1 − K)s² + (4 − 2K)s + 3).
+    num = poly(K * (S + 2) * (S + 3))
+    den = poly((1 - K) * S**2 + (4 - 2 * K) * S + 3)
+    assert ratio_text(num, den, "K") == "K*(s + 2)*(s + 3)/((1 - K)*s^2 + (4 - 2*K)*s + 3)"
+    assert rational_text(-54000 * K / (27 * K - 20), "K") == "54000*K/(20 - 27*K)"
+    assert rational_text(sympy.Integer(2) - K / 3, "Kc") == "(6 - Kc)/3"
