@@ -37,18 +37,7 @@ class Options:
 def run(config: Config, given: list[str], cwd: Path, options: Options | None = None) -> RunResult:
     """Check the spec files that `given` (or the configuration) names."""
     options = options or Options()
-    files, empty = spec_files(config, given, cwd)
-    result = RunResult(files=[], findings=[])
-    for folder in empty:
-        result.findings.append(finding("SL002", f"{folder}: no spec files here", Location(folder)))
-    specs: list[SpecFile] = []
-    for path in files:
-        shown = display_path(path, cwd)
-        result.files.append(shown)
-        spec = _read_one(path, shown, result)
-        if spec is not None:
-            specs.append(spec)
-    found = trace.index(specs, result.findings)
+    result, specs, found = read_specs(config, given, cwd)
     for loop_result, req_results, loop_findings in _analyse_all(found, config, options):
         result.loops.append(loop_result)
         result.requirements.extend(req_results)
@@ -69,6 +58,27 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
     result.findings.sort(key=Finding.sort_key)
     result.requirements.sort(key=lambda r: (r.path, r.line))
     return result
+
+
+def read_specs(
+    config: Config, given: list[str], cwd: Path
+) -> tuple[RunResult, list[SpecFile], trace.Index]:
+    """Load, validate, build and index the spec files; nothing analysed yet.
+
+    The result holds the files read and their findings so far.
+    """
+    files, empty = spec_files(config, given, cwd)
+    result = RunResult(files=[], findings=[])
+    for folder in empty:
+        result.findings.append(finding("SL002", f"{folder}: no spec files here", Location(folder)))
+    specs: list[SpecFile] = []
+    for path in files:
+        shown = display_path(path, cwd)
+        result.files.append(shown)
+        spec = _read_one(path, shown, result)
+        if spec is not None:
+            specs.append(spec)
+    return result, specs, trace.index(specs, result.findings)
 
 
 def _read_one(path: Path, shown: str, result: RunResult) -> SpecFile | None:
