@@ -14,7 +14,9 @@ def test_no_merge_conflict_markers_in_docs_or_code():
     for path in paths:
         text = path.read_text(encoding="utf-8")
         for marker in ("<<<<<<< ", "\n=======\n", ">>>>>>> "):
-            assert marker not in text, f"{path.relative_to(REPO)} holds a merge marker {marker.strip()!r}"
+            assert marker not in text, (
+                f"{path.relative_to(REPO)} holds a merge marker {marker.strip()!r}"
+            )
 
 
 def test_ci_runs_the_readme_test_command():

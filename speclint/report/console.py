@@ -43,6 +43,11 @@ def safe(text: str) -> str:
     return _UNSAFE.sub(lambda m: f"\\x{ord(m.group()):02x}", text)
 
 
+def plural(n: int, word: str) -> str:
+    """'1 file', '2 files'."""
+    return f"{n} {word}" if n == 1 else f"{n} {word}s"
+
+
 def number(x: float | None, unit: str = "") -> str:
     if x is None:
         return "—"
@@ -214,11 +219,7 @@ def _summary(console: Console, result: RunResult) -> None:
     s = summary(result)
     statuses: Counter[str] = Counter(s["statuses"])
     status_text = ", ".join(f"{n} {word}" for word, n in statuses.items()) or "no verdicts"
-    console.print(
-        Text(
-            f"{s['files']} files, {s['loops']} loops, {s['requirements']} requirements "
-            f"({status_text}); {s['errors']} errors, {s['warnings']} warnings, {s['notes']} notes",
-            style="bold",
-        )
-    )
+    counts = ", ".join(plural(s[key], key[:-1]) for key in ("files", "loops", "requirements"))
+    severities = ", ".join(plural(s[key], key[:-1]) for key in ("errors", "warnings", "notes"))
+    console.print(Text(f"{counts} ({status_text}); {severities}", style="bold"))
     console.print(Text(SHORT_CAUTION, style="dim"))
