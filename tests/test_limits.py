@@ -6,6 +6,7 @@ that owns it, with the reason it is a hazard beside the check.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import re
 import time
@@ -358,3 +359,178 @@ def test_yaml_safe_loader_would_have_run_code() -> None:
     text = "!!python/object/apply:builtins.len [[1, 2, 3]]"
     assert yaml.unsafe_load(text) == 3
     assert rules_at(f"speclint: 1\ntitle: {text}\n".encode()) == [("SL109", 2, 8)]
+
+
+# --------------------------------------------------------------------------------------------
+# Internal errors and the time budget
+
+
+OTHER = """\
+speclint: 1
+requirements:
+  - id: OK-1
+    origin: a second file, checked even when the first one breaks speclint
+    bogus: 1
+"""
+
+
+def test_internal_error_in_a_file_is_a_finding_and_exit_2(speclint, monkeypatch) -> None:
+    import speclint.pipeline as pipeline
+
+    real = pipeline.validate
+
+    def broken(doc):  # stands for a bug of ours met on one particular file
+        if doc.path == "a.yaml":
+            raise RuntimeError("stage failed")
+        return real(doc)
+
+    monkeypatch.setattr(pipeline, "validate", broken)
+    run = speclint({"a.yaml": BASE, "b.yaml": OTHER})
+    assert run.code == 2
+    assert "Traceback" not in run.err and run.err == ""
+    bug = [f for f in run.report["findings"] if f["rule"] == "SL001"]
+    assert len(bug) == 1 and bug[0]["path"] == "a.yaml"
+    assert "a.yaml" in bug[0]["message"] and "RuntimeError: stage failed" in bug[0]["message"]
+    assert "bug" in bug[0]["hint"]
+    # The other file was still checked.
+    assert ("SL201", "b.yaml") in [(f["rule"], f["path"]) for f in run.report["findings"]]
+
+
+def test_internal_error_in_a_loop_is_located_at_the_loop(speclint, monkeypatch) -> None:
+    from speclint import judge
+
+    def broken(loop, requirements):
+        raise ZeroDivisionError("division by zero")
+
+    monkeypatch.setattr(judge, "judge_loop", broken)
+    run = speclint({"a.yaml": BASE}, "--jobs", "1")
+    assert run.code == 2
+    bug = [f for f in run.report["findings"] if f["rule"] == "SL001"]
+    assert [(f["line"], f["column"]) for f in bug] == [(4, 3)], findings_of(run)
+    statuses = [r["status"] for r in run.report["requirements"]]
+    assert statuses == ["invalid"]
+
+
+def test_internal_error_exit_code_also_with_the_console_report(speclint, monkeypatch) -> None:
+    import speclint.pipeline as pipeline
+
+    monkeypatch.setattr(pipeline, "validate", lambda doc: 1 / 0)
+    run = speclint({"a.yaml": BASE}, fmt="console")
+    assert run.code == 2
+    assert "internal error while checking a.yaml" in run.out
+    assert "report this as a bug" in run.out
+
+
+def stubborn(loop, requirements):
+    """An analysis that never ends and swallows every ordinary exception on the way."""
+    while True:
+        with contextlib.suppress(Exception):
+            time.sleep(0.01)
+
+
+MANY = "speclint: 1\nloops:\n" + "".join(
+    f"  l{i}:\n    plant: '1/(s + {i + 1})'\n" for i in range(6)
+)
+
+
+@pytest.mark.parametrize("jobs", ["1", "2"])
+def test_budget_stops_a_stubborn_analysis_and_then_the_file(speclint, monkeypatch, jobs) -> None:
+    import speclint.pipeline as pipeline
+    from speclint import judge
+
+    monkeypatch.setattr(judge, "judge_loop", stubborn)
+    monkeypatch.setattr(pipeline, "LOOP_BUDGET_S", 0.3)
+    start = time.perf_counter()
+    run = speclint({"a.yaml": MANY}, "--jobs", jobs)
+    elapsed = time.perf_counter() - start
+    assert run.code == 1
+    budget = [f for f in run.report["findings"] if f["rule"] == "SL407"]
+    assert len(budget) == 6, findings_of(run)
+    took = [f for f in budget if "took longer" in f["message"]]
+    skipped = [f for f in budget if "not analysed" in f["message"]]
+    # Sequentially exactly MAX_EXPIRED_PER_FILE run out; with workers, those already started
+    # when the third ran out also finish their budget.
+    assert len(took) == pipeline.MAX_EXPIRED_PER_FILE if jobs == "1" else len(took) >= 3
+    assert len(took) + len(skipped) == 6
+    assert all(f["line"] is not None and f["column"] is not None for f in budget)
+    assert elapsed < 30  # six stubborn loops at 0.3 s, well under a second of budget each
+
+
+def test_time_budget_leaves_no_timer_behind() -> None:
+    import signal
+
+    from speclint.pipeline import BudgetExceeded, time_budget
+
+    before = signal.getsignal(signal.SIGALRM)
+    with pytest.raises(BudgetExceeded), time_budget(0.05):
+        stubborn(None, [])
+    assert signal.getitimer(signal.ITIMER_REAL) == (0.0, 0.0)
+    assert signal.getsignal(signal.SIGALRM) is before
+    with time_budget(5):
+        pass
+    assert signal.getitimer(signal.ITIMER_REAL) == (0.0, 0.0)
+
+
+# --------------------------------------------------------------------------------------------
+# Output: what reaches a terminal or a CI log
+
+
+def test_console_escapes_controls_in_paths_and_keeps_markup_as_text(speclint, tmp_path) -> None:
+    # A file name is not checked by the load stage; a pull request may choose it freely.
+    name = "evil\x1b]0;owned\x07\nspec.yaml:1:1: error SL000 forged\u202e.yaml"
+    text = "speclint: 1\n'[bold red]boom[/bold red]': 1\n"
+    run = speclint({name: text}, "--color", "always", fmt="console")
+    assert run.code == 1
+    assert "\x1b]0" not in run.out and "\x07" not in run.out and "\u202e" not in run.out
+    assert "\\x1b]0;owned\\x07\\x0aspec.yaml:1:1: error SL000 forged\\u202e.yaml" in run.out
+    # No line of the report starts with the forged location.
+    assert not any(line.startswith("spec.yaml:1:1") for line in run.out.splitlines())
+    # Markup in user text stays text: the brackets are shown, not read as a style.
+    assert 'unknown key "[bold red]boom[/bold red]"' in re.sub("\x1b\\[[0-9;]*m", "", run.out)
+
+
+def test_github_annotations_drop_line_separators_and_bidi_controls(tmp_path) -> None:
+    from speclint.findings import Finding, Location, Severity
+    from speclint.report import Settings
+    from speclint.report.github import render
+    from speclint.results import RunResult
+
+    message = "a\u2028::error::forged\u2029b\u202ec\x85d"
+    result = RunResult(
+        files=["a.yaml"],
+        findings=[Finding("SL201", Severity.ERROR, message, Location("a.yaml", 1, 1))],
+    )
+    out = render(result, Settings("1"), cwd=tmp_path)
+    assert out.splitlines()[0].endswith("::a::error::forgedbcd")
+    assert not re.search("[\u2028\u2029\u202e\x85]", out)
+
+
+def test_dangling_links_by_the_thousand_stay_fast(speclint) -> None:
+    from speclint.trace import MAX_SUGGESTIONS
+
+    reqs = "".join(
+        f"  - {{id: R-{i}, traces_to: [R-{i}x], verification: {{method: test}}}}\n"
+        for i in range(1500)
+    )
+    start = time.perf_counter()
+    run = speclint({"spec.yaml": "speclint: 1\nrequirements:\n" + reqs})
+    # Generous: about a second here; comparing every dangling ID with every ID took 17 s.
+    assert time.perf_counter() - start < 10
+    dangling = [f for f in run.report["findings"] if f["rule"] == "SL603"]
+    assert len(dangling) == 1500
+    suggested = [f for f in dangling if (f["hint"] or "").startswith("did you mean")]
+    assert len(suggested) == MAX_SUGGESTIONS
+    # The first ones still get the suggestion a typo deserves: R-0x → R-0.
+    assert dangling[0]["hint"] == "did you mean 'R-0'?"
+
+
+def test_unknown_loop_message_lists_a_few_loops_only(speclint) -> None:
+    loops = "".join(f"  l{i}: {{plant: '1/(s + 1)'}}\n" for i in range(40))
+    text = (
+        "speclint: 1\nloops:\n" + loops + "requirements:\n"
+        "  - {id: R-1, origin: x, loop: nowhere, verification: {method: test},"
+        " tracking: {reference: step, magnitude: 1, max_error: 1}}\n"
+    )
+    run = speclint({"spec.yaml": text})
+    hit = next(f for f in run.report["findings"] if f["rule"] == "SL311")
+    assert hit["message"].endswith("and 28 more)")
