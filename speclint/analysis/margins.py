@@ -873,6 +873,11 @@ def _sensitivity_exact(resp: _Resp, kappa: Fraction) -> tuple[float, float, list
     a = resp.d2
     b = resp.d2 + resp.p * (2 * k) + resp.n2 * k**2
     notes: list[str] = []
+    if b.is_zero:
+        # 1 + L ≡ 0 (say L = -1): no closed loop exists, so the sensitivity is infinite at
+        # every frequency.
+        notes.append("1 + L(s) is identically zero: the loop is ill-posed at this gain")
+        return math.inf, 0.0, notes
     on_axis = _nonneg_roots_x(b, include_zero=True)
     if on_axis:
         notes.append(
