@@ -534,3 +534,39 @@ def test_unknown_loop_message_lists_a_few_loops_only(speclint) -> None:
     run = speclint({"spec.yaml": text})
     hit = next(f for f in run.report["findings"] if f["rule"] == "SL311")
     assert hit["message"].endswith("and 28 more)")
+
+
+# --------------------------------------------------------------------------------------------
+# Every bound is documented in the README with the value the code enforces
+
+
+def test_readme_limits_match_the_code() -> None:
+    from speclint import expr, load, pipeline, trace
+
+    readme = (REPO / "README.md").read_text(encoding="utf-8")
+    section = readme[readme.index("## Limits") : readme.index("## Caution")]
+    schema = spec_schema()
+    expected = [
+        f"| spec file size | 1 MiB ({load.MAX_FILE_BYTES:,} bytes)",
+        f"| YAML nesting depth | {load.MAX_DEPTH} levels",
+        f"| YAML nodes per file | {load.MAX_NODES:,} |",
+        f"at most {load.MAX_NUMBER_DIGITS} digits, a decimal exponent within ±{load.MAX_DECIMAL_EXPONENT}, "
+        f"a size within 1e-{load.MAX_MAGNITUDE} to 1e{load.MAX_MAGNITUDE}",
+        f"| loops per file | {schema['properties']['loops']['maxProperties']:,} |",
+        f"| requirements per file | {schema['properties']['requirements']['maxItems']:,} |",
+        f"| expression length | {expr.MAX_LENGTH:,} characters |",
+        f"| expression parts (syntax-tree nodes) | {expr.MAX_NODES} |",
+        f"| nested brackets in an expression | {expr.MAX_PAREN_DEPTH} |",
+        f"| operators nested in an expression | {expr.MAX_TREE_DEPTH} levels |",
+        f"at most {expr.MAX_DIGITS} digits, a decimal exponent within ±{expr.MAX_DECIMAL_EXPONENT} |",
+        f"a whole number from 0 to {expr.MAX_EXPONENT} |",
+        f"| polynomial degree | {expr.MAX_DEGREE} in `s` and {expr.MAX_DEGREE} in the gain",
+        f"each within 1e-{expr.MAX_MAGNITUDE} to 1e{expr.MAX_MAGNITUDE}, and at most {expr.MAX_COEFF_BITS:,} bits",
+        f"| analysis of one loop | {pipeline.LOOP_BUDGET_S:g} s |",
+        f"run out of that time | {pipeline.MAX_EXPIRED_PER_FILE};",
+        f"stop after {trace.MAX_SUGGESTIONS} dangling",
+    ]
+    for text in expected:
+        assert text in section, text
+    schema_expression = schema["$defs"]["expression"]["maxLength"]
+    assert schema_expression == expr.MAX_LENGTH
