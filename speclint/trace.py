@@ -32,7 +32,7 @@ from fractions import Fraction
 from pathlib import Path, PurePosixPath, PureWindowsPath
 
 from speclint import fingerprint
-from speclint.discover import Config
+from speclint.discover import Config, ConfigError
 from speclint.findings import Finding, Location
 from speclint.model import (
     Criterion,
@@ -168,12 +168,28 @@ def _duplicate_ids(found: Index) -> Iterator[Finding]:
             yield finding("SL601", msg, where, hint, subject=rid)
 
 
+# The configured id_pattern comes from the repository, so a pull request can change it: a
+# pattern that backtracks exponentially ("(a+)+b") would hold the run for ever. Legitimate
+# patterns match thousands of IDs in milliseconds.
+ID_PATTERN_BUDGET_S = 2.0
+
+
 def _id_pattern(found: Index, pattern: str) -> Iterator[Finding]:
+    from speclint.pipeline import BudgetExceeded, time_budget
+
     compiled = re.compile(pattern)
-    for req in found.requirements:
-        if compiled.fullmatch(req.id) is None:
-            msg = f"requirement ID {req.id!r} does not match the configured id_pattern {pattern!r}"
-            yield finding("SL602", msg, req.place("id"), subject=req.id)
+    try:
+        with time_budget(ID_PATTERN_BUDGET_S):
+            off = [req for req in found.requirements if compiled.fullmatch(req.id) is None]
+    except BudgetExceeded:
+        raise ConfigError(
+            f"id_pattern {pattern!r} took more than {ID_PATTERN_BUDGET_S:g} s to match the "
+            "requirement IDs; it backtracks (a repeated group holding a repetition, such as "
+            "(a+)+): write it without nesting"
+        ) from None
+    for req in off:
+        msg = f"requirement ID {req.id!r} does not match the configured id_pattern {pattern!r}"
+        yield finding("SL602", msg, req.place("id"), subject=req.id)
 
 
 def _links(

@@ -570,3 +570,24 @@ def test_readme_limits_match_the_code() -> None:
         assert text in section, text
     schema_expression = schema["$defs"]["expression"]["maxLength"]
     assert schema_expression == expr.MAX_LENGTH
+
+
+def test_a_backtracking_id_pattern_is_a_configuration_error(tmp_path, monkeypatch) -> None:
+    # The configuration is part of the pull request too: (a+)+ backtracks exponentially on
+    # an ID of a's that does not match (common practice: catastrophic backtracking).
+    import io
+
+    from speclint.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "speclint.toml").write_text('id_pattern = "(a+)+b"\n')
+    (tmp_path / "spec.yaml").write_text(
+        "speclint: 1\nrequirements:\n  - {id: " + "a" * 60 + ", origin: x}\n"
+    )
+    out, err = io.StringIO(), io.StringIO()
+    start = time.perf_counter()
+    code = main(["check", "spec.yaml", "--no-cache"], out, err)
+    assert time.perf_counter() - start < 30
+    assert code == 2
+    assert "id_pattern" in err.getvalue() and "backtracks" in err.getvalue()
+    assert "Traceback" not in err.getvalue()
