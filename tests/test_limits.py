@@ -565,6 +565,7 @@ def test_readme_limits_match_the_code() -> None:
         f"| analysis of one loop | {pipeline.LOOP_BUDGET_S:g} s |",
         f"run out of that time | {pipeline.MAX_EXPIRED_PER_FILE};",
         f"stop after {trace.MAX_SUGGESTIONS} dangling",
+        f"against every ID | {trace.ID_PATTERN_BUDGET_S:g} s |",
     ]
     for text in expected:
         assert text in section, text
@@ -591,3 +592,17 @@ def test_a_backtracking_id_pattern_is_a_configuration_error(tmp_path, monkeypatc
     assert code == 2
     assert "id_pattern" in err.getvalue() and "backtracks" in err.getvalue()
     assert "Traceback" not in err.getvalue()
+
+
+def test_an_alias_bomb_is_never_expanded() -> None:
+    # Nine levels of nine aliases would expand to 9**9 (387 million) strings: printing,
+    # comparing or validating that takes minutes and gigabytes. Aliases are refused and
+    # stand as None, so the data stays as small as the text.
+    raw = (REPO / "tests" / "hostile" / "alias-bomb.yaml").read_bytes()
+    start = time.perf_counter()
+    result = read_spec("bomb.yaml", raw)
+    assert time.perf_counter() - start < 1
+    assert result.document is not None
+    assert result.document.data["i"] == [None] * 9
+    assert len(json.dumps(result.document.data)) < 2 * len(raw)
+    assert len([f for f in result.findings if f.rule == "SL106"]) == 8 * 9
