@@ -24,6 +24,7 @@ from speclint.report import REPORTERS, Settings
 from speclint.rules import RULES
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+EXIT_INTERNAL = 2  # shares the code of a usage error: either way the run proved nothing
 
 
 class UsageError(Exception):
@@ -174,7 +175,7 @@ def main(
             "please report it as a bug with the command line and the spec files involved",
             file=stderr,
         )
-        return EXIT_USAGE
+        return EXIT_INTERNAL
 
 
 def entry() -> NoReturn:
@@ -209,6 +210,8 @@ def _check(args: argparse.Namespace, stdout: TextIO) -> int:
         write_atomically(Path(args.output), text)
     else:
         stdout.write(text)
+    if any(f.rule == "SL001" for f in result.findings):
+        return EXIT_INTERNAL  # the report is written, but a bug of ours fails the run
     failing = any(f.severity.rank >= fail_on.rank for f in result.findings)
     return EXIT_FINDINGS if failing else EXIT_CLEAN
 

@@ -109,10 +109,13 @@ def _read_one(path: Path, shown: str, result: RunResult) -> SpecFile | None:
         return None
 
 
-def internal_error(shown: str, exc: BaseException) -> Finding:
-    message = f"internal error while checking this file ({type(exc).__name__}: {exc})"
+def internal_error(shown: str, exc: BaseException, where: Location | None = None) -> Finding:
+    """SL001: a bug of ours met while checking `shown`; the run reports it and exits 2."""
+    detail = str(exc)
+    detail = detail if len(detail) <= 200 else detail[:200] + "…"
+    message = f"internal error while checking {shown} ({type(exc).__name__}: {detail})"
     hint = "please report this as a bug, with the file if you can share it"
-    return finding("SL001", message, Location(shown, 1, 1), hint)
+    return finding("SL001", message, where or Location(shown, 1, 1), hint)
 
 
 Analysed = tuple[LoopResult, list[RequirementResult], list[Finding]]
@@ -120,6 +123,9 @@ Analysed = tuple[LoopResult, list[RequirementResult], list[Finding]]
 # Wall-clock budget for one loop's analysis. Degree and size caps keep honest models far
 # below it (milliseconds); it stops a pathological one from holding up CI.
 LOOP_BUDGET_S = 20.0
+# Once this many loops of one file have run out of their budget, the file's other loops are
+# not analysed: a file of 2,000 slow loops then costs about a minute, not eleven hours.
+MAX_EXPIRED_PER_FILE = 3
 
 
 def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[Analysed]:
@@ -127,26 +133,73 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
     cache = Cache(config.root / config.cache_dir) if options.use_cache else None
     work: list[tuple[int, Loop, list[Requirement], str | None]] = []
     out: list[Analysed | None] = []
+    by_loop: dict[str, list[Requirement]] = {}
+    for req in found.requirements:
+        if req.loop is not None:
+            by_loop.setdefault(req.loop, []).append(req)
     for loop in found.loops.values():
-        mine = [r for r in found.requirements if r.loop == loop.name]
+        mine = by_loop.get(loop.name, [])
         key = loop_key(loop, mine) if cache is not None else None
         hit = cache.get(key) if cache is not None and key is not None else None
         out.append(hit)
         if hit is None:
             work.append((len(out) - 1, loop, mine, key))
     jobs = options.jobs if options.jobs > 0 else default_jobs(len(work))
-    if jobs > 1 and len(work) > 1:
-        from concurrent.futures import ProcessPoolExecutor
-
-        with ProcessPoolExecutor(max_workers=jobs) as pool:
-            done = list(pool.map(analyse_loop, [(w[1], w[2]) for w in work], chunksize=4))
-    else:
-        done = [analyse_loop((loop, mine)) for _, loop, mine, _ in work]
+    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs)
     for (slot, _, _, key), analysed in zip(work, done, strict=True):
         out[slot] = analysed
         if cache is not None and key is not None and not _has_internal_error(analysed):
             cache.put(key, *analysed)
     return [a for a in out if a is not None]
+
+
+def _run(tasks: list[tuple[Loop, list[Requirement]]], jobs: int) -> list[Analysed]:
+    """analyse_loop on every task, in worker processes when jobs > 1; a file whose loops keep
+    running out of budget has its remaining loops skipped (see MAX_EXPIRED_PER_FILE)."""
+    done: list[Analysed | None] = [None] * len(tasks)
+    expired: dict[str, int] = {}
+
+    def record(i: int, analysed: Analysed) -> bool:
+        """Keep the result; True when its file has now used up its allowance."""
+        done[i] = analysed
+        if any(f.rule == "SL407" for f in analysed[2]):
+            path = tasks[i][0].location.path
+            expired[path] = expired.get(path, 0) + 1
+            return expired[path] == MAX_EXPIRED_PER_FILE
+        return False
+
+    if jobs > 1 and len(tasks) > 1:
+        from concurrent.futures import ProcessPoolExecutor, as_completed
+
+        with ProcessPoolExecutor(max_workers=jobs) as pool:
+            futures = {pool.submit(analyse_loop, task): i for i, task in enumerate(tasks)}
+            for future in as_completed(futures):
+                if future.cancelled():
+                    continue
+                i = futures[future]
+                if record(i, future.result()):
+                    path = tasks[i][0].location.path
+                    for other, j in futures.items():
+                        if tasks[j][0].location.path == path:
+                            other.cancel()  # only those not yet started; the rest finish
+    else:
+        for i, task in enumerate(tasks):
+            if expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
+                record(i, analyse_loop(task))
+    return [d if d is not None else _skipped(*tasks[i]) for i, d in enumerate(done)]
+
+
+def _skipped(loop: Loop, requirements: list[Requirement]) -> Analysed:
+    from speclint import judge
+
+    msg = (
+        f"loops.{loop.name}: not analysed: {MAX_EXPIRED_PER_FILE} loops of this file already "
+        f"ran out of their {LOOP_BUDGET_S:g} s time budget"
+    )
+    hint = "simplify the slow loops first (lower degree, fewer constants)"
+    stopped = finding("SL407", msg, loop.location, hint, subject=loop.name)
+    why = "not analysed (time budget of the file)"
+    return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [stopped]
 
 
 def default_jobs(loops_to_analyse: int) -> int:
@@ -178,33 +231,41 @@ def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
         why = "the loop's analysis was stopped (time budget)"
         return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [stopped]
     except Exception as exc:  # a bug of ours: report it against the loop, go on with the rest
-        bug = internal_error(loop.location.path, exc)
+        bug = internal_error(loop.location.path, exc, loop.location)
         why = "internal error"
         return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [bug]
     return outcome.loop, outcome.requirements, outcome.findings
 
 
-class BudgetExceeded(Exception):
-    """A loop's analysis ran past its time budget."""
+class BudgetExceeded(BaseException):
+    """A loop's analysis ran past its time budget.
+
+    A BaseException, like KeyboardInterrupt, so that no ``except Exception`` inside the
+    libraries the analysis calls can swallow it and carry on past the budget.
+    """
 
 
 @contextmanager
 def time_budget(seconds: float) -> Iterator[None]:
     """Raise BudgetExceeded in this thread after `seconds` (POSIX main thread only; elsewhere
-    no budget applies)."""
+    no budget applies). Python handles the signal between bytecodes, so a single long call
+    into C code ends first; the size caps on models keep such calls short."""
     usable = hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
     if not usable:
         yield
         return
+    armed = [True]
 
     def expire(signum: int, frame: object) -> None:
-        raise BudgetExceeded
+        if armed[0]:  # a signal that lands after the budget closed is ignored
+            raise BudgetExceeded
 
     previous = signal.signal(signal.SIGALRM, expire)
     signal.setitimer(signal.ITIMER_REAL, seconds)
     try:
         yield
     finally:
+        armed[0] = False
         signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, previous)
 

@@ -51,7 +51,7 @@ def test_caret_and_double_star_are_the_same_power() -> None:
     assert read("2.5e-3*s^2 + 1").num == poly(sympy.Rational(1, 400) * S**2 + 1)
 
 
-@pytest.mark.parametrize("literal", ["0.1", "2.5e-3", "1e-300", "123.456", ".5", "5.", "7E+2"])
+@pytest.mark.parametrize("literal", ["0.1", "2.5e-3", "1e-100", "123.456", ".5", "5.", "7E+2"])
 def test_decimals_are_exact_rationals(literal: str) -> None:
     # Reference: fractions.Fraction's own exact reading of a decimal string.
     value = Fraction(literal)

@@ -35,12 +35,21 @@ SHORT_CAUTION = (
     "IEC 61800-5-2, IEC 61508 or ISO 13849-1, nor qualified review."
 )
 
-_UNSAFE = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+# Controls (ESC would drive the terminal, CR rewrite the line, LF start a line of its own that
+# a CI log reader takes for ours), Unicode line separators, bidirectional overrides and a
+# stray byte-order mark. The load stage refuses them in specs; this is the last line of
+# defence for anything else that reaches the console (paths, cached messages).
+_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069\ufeff]")
+
+
+def _escape(char: str) -> str:
+    code = ord(char)
+    return f"\\x{code:02x}" if code <= 0xFF else f"\\u{code:04x}"
 
 
 def safe(text: str) -> str:
-    """User text with control characters shown as escapes (ESC would drive the terminal)."""
-    return _UNSAFE.sub(lambda m: f"\\x{ord(m.group()):02x}", text)
+    """User text with control characters shown as escapes, so it stays on its line, inert."""
+    return _UNSAFE.sub(lambda m: _escape(m.group()), text)
 
 
 def plural(n: int, word: str) -> str:
