@@ -377,11 +377,14 @@ def _tracking(crit: Tracking, model: LoopAlgebra, fig: Figures, stable: bool) ->
         detail["achieved_exact"] = _text(error)
     if crit.percent is not None:
         detail["limit"] = f"{_num(crit.percent)}% of R"
+    # The reason is asked for only when no gain meets the limit (it is None otherwise, and
+    # would compute the same gain set a second time to find that out).
+    gains = steady.tracking_gains(model, ref, r, limit)
     return Limit(
         "tracking",
         label,
-        steady.tracking_gains(model, ref, r, limit),
-        steady.why_tracking_unreachable(model, ref, r, limit),
+        gains,
+        steady.why_tracking_unreachable(model, ref, r, limit) if gains.is_empty() else None,
         float(limit),
         to_float(error) if stable else None,
         bool(abs(error) <= _qq(limit)) if stable else None,
@@ -395,12 +398,15 @@ def _constants(crit: ErrorConstants, model: LoopAlgebra, fig: Figures) -> list[L
         if minimum is None:
             continue
         value = getattr(fig.steady, which)
+        gains = steady.constant_gains(model, which, minimum)
         out.append(
             Limit(
                 "error_constants",
                 f"{_CONSTANT_LABEL[which]} ≥ {_num(minimum)}",
-                steady.constant_gains(model, which, minimum),
-                steady.why_constant_unreachable(model, which, minimum),
+                gains,
+                steady.why_constant_unreachable(model, which, minimum)
+                if gains.is_empty()
+                else None,
                 float(minimum),
                 to_float(value),
                 bool(value >= _qq(minimum)),
@@ -412,11 +418,15 @@ def _constants(crit: ErrorConstants, model: LoopAlgebra, fig: Figures) -> list[L
 
 def _disturbance(crit: Disturbance, model: LoopAlgebra, stable: bool) -> Limit:
     deviation = steady.disturbance_error(model, crit.magnitude)
+    gains = steady.disturbance_gains(model, crit.magnitude, crit.max_error)
+    why = None
+    if gains.is_empty():
+        why = steady.why_disturbance_unreachable(model, crit.magnitude, crit.max_error)
     return Limit(
         "disturbance",
         f"disturbance deviation ≤ {_num(crit.max_error)}",
-        steady.disturbance_gains(model, crit.magnitude, crit.max_error),
-        steady.why_disturbance_unreachable(model, crit.magnitude, crit.max_error),
+        gains,
+        why,
         float(crit.max_error),
         to_float(deviation) if stable else None,
         bool(abs(deviation) <= _qq(crit.max_error)) if stable else None,

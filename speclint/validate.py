@@ -63,9 +63,15 @@ def _pattern(validator: Any, pattern: str, instance: Any, schema: dict[str, Any]
         yield ValidationError(f"does not match {pattern!r}")
 
 
+def restore_strings(doc: Document) -> None:
+    """Give plain scalars back their source text where the schema wants a string (the change
+    validation makes to the data; a run that has the validation cached still needs it)."""
+    _restore_strings(spec_schema(), doc.data, (), doc)
+
+
 def validate(doc: Document) -> list[Finding]:
     """Findings for every way `doc` departs from the spec schema (none when it conforms)."""
-    _restore_strings(spec_schema(), doc.data, (), doc)
+    restore_strings(doc)
     found: dict[tuple[Path, str], Finding] = {}
     already = set(doc.flagged)  # reported by the load stage; a second message would be noise
     for error in _validator().iter_errors(doc.data):

@@ -90,7 +90,12 @@ def characteristic(loop: LoopAlgebra) -> sympy.Poly:
 def at_gain(p: sympy.Poly, k: Fraction) -> sympy.Poly:
     """p with the gain fixed at k, as a polynomial in S alone over the rationals."""
     value = sympy.Rational(k.numerator, k.denominator)
-    return sympy.Poly(p.as_expr().subs(K, value), S, domain=sympy.QQ)
+    if p.is_zero:
+        return sympy.Poly(0, S, domain=sympy.QQ)
+    # Poly.eval substitutes in the polynomial's own representation; going through an
+    # expression and subs gave the same polynomial at twenty times the cost.
+    fixed = p.eval(K, value)
+    return sympy.Poly(fixed.as_expr(), S, domain=sympy.QQ) if fixed.gens != (S,) else fixed
 
 
 def degree_in_s(p: sympy.Poly) -> int:

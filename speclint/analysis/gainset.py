@@ -44,7 +44,73 @@ def less(a: Exact, b: Exact) -> bool:
         return False
     if b is INF or a == -INF:
         return True
-    return bool(a < b)
+    if a.is_Rational and b.is_Rational:
+        return bool(a < b)
+    decided = _compare_by_intervals(a, b)
+    return bool(a < b) if decided is None else decided
+
+
+# sympy decides `a < b` for real algebraic numbers by evaluating both to growing precision;
+# narrowing their isolating intervals until they part decides it exactly, far faster.
+_MAX_REFINEMENTS = 200
+
+
+def _enclosure(x: Exact) -> tuple[Fraction, Fraction] | None:
+    if x.is_Rational:
+        q = Fraction(int(x.p), int(x.q))
+        return q, q
+    if x.is_Float:
+        q = Fraction(float(x)) if x._prec <= 53 else Fraction(str(sympy.Rational(x)))
+        return q, q
+    if isinstance(x, sympy.CRootOf) and x.is_real:
+        iv = x._get_interval()
+        return Fraction(int(iv.a.numerator), int(iv.a.denominator)), Fraction(
+            int(iv.b.numerator), int(iv.b.denominator)
+        )
+    return None
+
+
+def _narrow(x: Exact) -> None:
+    x._set_interval(x._get_interval().refine())
+
+
+def _rational_between_enclosures(a: Exact, b: Exact) -> sympy.Rational | None:
+    """A rational strictly between a < b: the middle of the gap between their isolating
+    intervals once they part; None when either is not a number _enclosure handles."""
+    for _ in range(_MAX_REFINEMENTS):
+        ea, eb = _enclosure(a), _enclosure(b)
+        if ea is None or eb is None:
+            return None
+        if ea[1] < eb[0]:
+            mid = (ea[1] + eb[0]) / 2
+            return sympy.Rational(mid.numerator, mid.denominator)
+        wide = a if (ea[1] - ea[0]) >= (eb[1] - eb[0]) else b
+        if wide.is_Rational or wide.is_Float:
+            wide = b if wide is a else a
+        if wide.is_Rational or wide.is_Float:
+            return None
+        _narrow(wide)
+    return None
+
+
+def _compare_by_intervals(a: Exact, b: Exact) -> bool | None:
+    """a < b from isolating intervals; None when either is not a number this handles.
+    a ≠ b: two different real algebraic numbers always part after enough refinement."""
+    for _ in range(_MAX_REFINEMENTS):
+        ea, eb = _enclosure(a), _enclosure(b)
+        if ea is None or eb is None:
+            return None
+        if ea[1] < eb[0]:
+            return True
+        if eb[1] < ea[0]:
+            return False
+        wide = a if (ea[1] - ea[0]) >= (eb[1] - eb[0]) else b
+        if ea[0] == ea[1] and eb[0] == eb[1]:
+            return ea[0] < eb[0]
+        if wide.is_Rational or wide.is_Float:
+            wide = b if wide is a else a
+        _narrow(wide)
+    return None
 
 
 def rational_between(a: Exact, b: Exact) -> sympy.Rational:
@@ -57,6 +123,9 @@ def rational_between(a: Exact, b: Exact) -> sympy.Rational:
         return sympy.floor(a) + 1 if a.is_Rational else sympy.floor(a.evalf(30)) + 1
     if a.is_Rational and b.is_Rational:
         return (a + b) / 2
+    parted = _rational_between_enclosures(a, b)
+    if parted is not None:
+        return parted
     digits = 20
     while True:
         fa, fb = a.evalf(digits), b.evalf(digits)

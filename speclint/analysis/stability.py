@@ -364,16 +364,27 @@ class StableSet:
     at ``loop.nominal`` (for a loop without gain: its one verdict), None when not decided.
     ``unsupported`` says why the set could not be computed; ``gains`` is then empty and
     must not be read as "unstable".
+
+    ``boundaries`` are classified when read, not when the set is computed: finding each
+    crossing frequency ω0 (resultants, a 50-digit choice) costs more than the whole set,
+    and ``speclint check`` never shows them. ``ends`` keeps what that needs: each end the
+    loop sets with its irreducible polynomial, and ``columns`` the coefficients in s.
     """
 
     gains: GainSet
-    boundaries: tuple[Boundary, ...]
     nominal_stable: bool | None
     nominal_table: RouthTable | None
     depends_on_gain: bool
     first_column: tuple[sympy.Expr, ...] = ()
     notes: tuple[str, ...] = ()
     unsupported: str | None = None
+    ends: tuple[tuple[Exact, sympy.Poly], ...] = ()
+    columns: tuple[sympy.Poly, ...] = ()
+
+    @property
+    def boundaries(self) -> tuple[Boundary, ...]:
+        """How a root crosses at each end of the stable intervals that the loop sets."""
+        return tuple(_classify(gain, factor, list(self.columns)) for gain, factor in self.ends)
 
 
 def stable_gains(loop: LoopAlgebra) -> StableSet:
@@ -409,7 +420,6 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         verdict = bool(nominal_stable)
         return StableSet(
             gains=domain if verdict else GainSet.empty(),
-            boundaries=(),
             nominal_stable=verdict,
             nominal_table=nominal_table,
             depends_on_gain=False,
@@ -420,7 +430,6 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
-            boundaries=(),
             nominal_stable=nominal_stable,
             nominal_table=nominal_table,
             depends_on_gain=True,
@@ -443,18 +452,19 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         if ok
     ]
     gains = GainSet.of(pieces).intersect(domain)
-    boundaries = tuple(
-        _classify(gain, factor, columns)
+    ends_set = tuple(
+        (gain, factor)
         for i, (gain, factor) in enumerate(candidates)
         if (verdicts[i] or verdicts[i + 1]) and domain.contains(gain)
     )
     return StableSet(
         gains=gains,
-        boundaries=boundaries,
         nominal_stable=nominal_stable,
         nominal_table=nominal_table,
         depends_on_gain=True,
         first_column=column_exprs,
+        ends=ends_set,
+        columns=tuple(columns),
     )
 
 
@@ -462,7 +472,6 @@ def _unsupported(depends: bool, why: str) -> StableSet:
     """No set computed; `why` says so. The empty set must not be read as "unstable"."""
     return StableSet(
         gains=GainSet.empty(),
-        boundaries=(),
         nominal_stable=None,
         nominal_table=None,
         depends_on_gain=depends,
@@ -473,7 +482,6 @@ def _unsupported(depends: bool, why: str) -> StableSet:
 def _nowhere_stable(depends: bool, note: str) -> StableSet:
     return StableSet(
         gains=GainSet.empty(),
-        boundaries=(),
         nominal_stable=False,
         nominal_table=None,
         depends_on_gain=depends,
@@ -517,7 +525,8 @@ def _symbolic_first_column(
 ) -> tuple[list[Any], int | None]:
     """Routh first column over Q(k); also the power of the row whose entry is ≡ 0, if any."""
     n = len(columns) - 1
-    elems = [_FIELD.from_expr(c.as_expr()) for c in columns]
+    # Straight from the coefficients: the same field elements as from_expr(as_expr()).
+    elems = [_FIELD.field_new(_FIELD.ring.from_dict(c.as_dict(native=True))) for c in columns]
     width = n // 2 + 1
     zero = _FIELD.zero
     prev = elems[0::2] + [zero] * (width - len(elems[0::2]))
@@ -539,7 +548,7 @@ def _candidates(first_column: list[Any]) -> list[tuple[Exact, sympy.Poly]]:
     factors: dict[tuple[object, ...], sympy.Poly] = {}
     for f in first_column:
         for part in (f.numer, f.denom):
-            poly = sympy.Poly(part.as_expr(), K, domain=sympy.QQ)
+            poly = sympy.Poly.from_dict(dict(part) or {(0,): 0}, K, domain=sympy.QQ)
             if poly.degree() <= 0:
                 continue
             for factor, _ in poly.factor_list()[1]:

@@ -12,6 +12,7 @@ import io
 import re
 from collections import Counter
 from itertools import groupby
+from typing import Any
 
 from rich.console import Console
 from rich.text import Text
@@ -70,7 +71,8 @@ def number(x: float | None, unit: str = "") -> str:
 
 def render(result: RunResult, settings: Settings) -> str:
     buffer = io.StringIO()
-    console = Console(
+    console = _Batched(
+        plain=not settings.color and settings.width is None,
         file=buffer,
         force_terminal=settings.color,
         no_color=not settings.color,
@@ -84,7 +86,41 @@ def render(result: RunResult, settings: Settings) -> str:
     _findings(console, result)
     _loops(console, result)
     _summary(console, result)
+    console.flush_lines()
     return buffer.getvalue()
+
+
+class _Batched(Console):
+    """A Console that keeps the lines printed to it and renders them in one call.
+
+    rich's print costs about 0.2 ms a call whatever it prints; a report over 1,000 loops
+    prints some 14,000 lines, so one print of the lines joined saves seconds. Each line is
+    still laid out on its own (a Text is wrapped and styled line by line), so the output is
+    the same.
+    """
+
+    def __init__(self, plain: bool = False, **kwargs: Any) -> None:
+        super().__init__(**kwargs)
+        self._lines: list[Text] = []
+        # No colour and no width (piped output): rich would write each line's plain text
+        # as it is, so it is written directly, unless a tab needs rich's expansion.
+        self._plain = plain
+
+    def print(self, *objects: Any, **kwargs: Any) -> None:
+        if kwargs or len(objects) > 1 or (objects and not isinstance(objects[0], Text)):
+            self.flush_lines()
+            super().print(*objects, **kwargs)
+            return
+        self._lines.append(objects[0] if objects else Text(""))
+
+    def flush_lines(self) -> None:
+        if self._lines:
+            lines, self._lines = self._lines, []
+            texts = [line.plain for line in lines]
+            if self._plain and not any("\t" in text for text in texts):
+                self.file.write("\n".join(texts) + "\n")
+                return
+            super().print(Text("\n").join(lines))
 
 
 def _findings(console: Console, result: RunResult) -> None:

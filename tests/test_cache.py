@@ -1,0 +1,220 @@
+"""The analysis cache and parallel workers never change an answer.
+
+No outside reference is needed here: every check compares a run that uses the cache (or
+worker processes) with a fresh serial analysis of the same specs, byte for byte.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import os
+import shutil
+import subprocess
+from pathlib import Path
+
+import pytest
+
+import speclint.pipeline
+from conftest import REPO
+from speclint.cli import main
+
+CACHE = ".speclint_cache"
+
+
+def _check(*args: str) -> tuple[int, str]:
+    out, err = io.StringIO(), io.StringIO()
+    code = main(["check", "--format", "json", *args], out, err)
+    assert "Traceback" not in err.getvalue() and "internal error" not in err.getvalue()
+    return code, out.getvalue()
+
+
+@pytest.fixture
+def demo(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
+    """A copy of the demo specs with their configuration, as the working folder."""
+    shutil.copytree(REPO / "examples", tmp_path / "examples")
+    (tmp_path / "pyproject.toml").write_text('[tool.speclint]\npaths = ["examples"]\n')
+    monkeypatch.chdir(tmp_path)
+    return tmp_path
+
+
+def _entries(root: Path) -> list[Path]:
+    return sorted(p for p in (root / CACHE).rglob("*.json"))
+
+
+def _fresh() -> str:
+    return _check("--no-cache")[1]
+
+
+def _no_analysis(monkeypatch: pytest.MonkeyPatch) -> None:
+    def refuse(task: object) -> object:
+        raise AssertionError("a loop was analysed although its entry is cached")
+
+    monkeypatch.setattr(speclint.pipeline, "analyse_loop", refuse)
+
+
+def test_warm_run_is_byte_identical_and_analyses_nothing(demo, monkeypatch):
+    fresh = _fresh()
+    assert not (demo / CACHE).exists(), "--no-cache must write nothing"
+    code, cold = _check()
+    assert cold == fresh
+    loops = len(json.loads(cold)["loops"])
+    files = len(list((demo / "examples").glob("*.yaml")))
+    assert len(_entries(demo)) == loops + files and loops > 0  # an entry per loop, per file
+    _no_analysis(monkeypatch)
+    code_warm, warm = _check()
+    assert (code_warm, warm) == (code, cold)
+
+
+def test_the_cache_folder_ignores_itself_in_git(demo):
+    _check()
+    assert (demo / CACHE / ".gitignore").read_text().splitlines()[-1] == "*"
+    if shutil.which("git") is None:
+        pytest.skip("git is not installed")
+    subprocess.run(["git", "init", "-q", str(demo)], check=True)
+    listed = subprocess.run(
+        ["git", "status", "--porcelain", "--untracked-files=all"],
+        cwd=demo,
+        capture_output=True,
+        text=True,
+        check=True,
+    ).stdout
+    assert "examples/" in listed
+    assert CACHE not in listed
+
+
+def _garbage(path: Path) -> None:
+    path.write_bytes(b"\x00\xff\xfe not json at all \x80")
+
+
+def _truncated(path: Path) -> None:
+    text = path.read_text()
+    path.write_text(text[: len(text) // 2])
+
+
+def _empty(path: Path) -> None:
+    path.write_text("")
+
+
+def _wrong_shape(path: Path) -> None:
+    entry = json.loads(path.read_text())
+    entry["loop"] = [1, 2, 3]
+    path.write_text(json.dumps(entry))
+
+
+def _a_list(path: Path) -> None:
+    path.write_text("[1, 2, 3]")
+
+
+def _directory(path: Path) -> None:
+    path.unlink()
+    path.mkdir()
+    (path / "stray.txt").write_text("left here by something else")
+
+
+@pytest.mark.parametrize(
+    "spoil",
+    [_garbage, _truncated, _empty, _wrong_shape, _a_list, _directory],
+    ids=lambda f: f.__name__,
+)
+def test_a_corrupt_entry_is_ignored_and_rewritten(demo, spoil):
+    fresh = _fresh()
+    _check()
+    entries = _entries(demo)
+    for path in entries:
+        spoil(path)
+    assert _check()[1] == fresh
+    for path in entries:
+        assert path.is_file()
+        assert json.loads(path.read_text())["key"] == path.stem
+
+
+def test_a_foreign_entry_under_another_key_is_not_trusted(demo):
+    fresh = _fresh()
+    _check()
+    first, second = _entries(demo)[:2]
+    shutil.copyfile(first, second)  # right format, the other loop's analysis
+    assert _check()[1] == fresh
+    assert json.loads(second.read_text())["key"] == second.stem
+
+
+def test_cache_dir_from_the_configuration(demo):
+    (demo / "pyproject.toml").write_text(
+        '[tool.speclint]\npaths = ["examples"]\ncache_dir = "build/lint-cache"\n'
+    )
+    fresh = _fresh()
+    assert _check()[1] == fresh
+    assert not (demo / CACHE).exists()
+    assert (demo / "build" / "lint-cache" / ".gitignore").is_file()
+    assert list((demo / "build" / "lint-cache").rglob("*.json"))
+
+
+def test_a_cache_folder_that_cannot_be_written_means_no_cache(demo):
+    # A regular file where the folder should be: creating it fails even for root.
+    (demo / "pyproject.toml").write_text(
+        '[tool.speclint]\npaths = ["examples"]\ncache_dir = "in-the-way"\n'
+    )
+    (demo / "in-the-way").write_text("a file, not a folder\n")
+    fresh = _fresh()
+    assert _check()[1] == fresh
+    assert _check()[1] == fresh
+    assert (demo / "in-the-way").read_text() == "a file, not a folder\n"
+
+
+@pytest.mark.skipif(os.name != "posix" or os.geteuid() == 0, reason="root writes anywhere")
+def test_a_read_only_cache_folder_means_no_cache(demo):
+    fresh = _fresh()
+    folder = demo / CACHE
+    folder.mkdir()
+    folder.chmod(0o500)
+    try:
+        assert _check()[1] == fresh
+        assert list(folder.iterdir()) == []
+    finally:
+        folder.chmod(0o700)
+
+
+def _loops_file(count: int) -> str:
+    """`count` position loops of degree 3 or 4, some with dead time, each with three
+    requirements (tracking, error constant, margins)."""
+    loops, reqs = [], []
+    for i in range(count):
+        tau = f"0.0{i % 9 + 1}"
+        lag = f" * 1/(0.00{i % 5 + 2}*s + 1)" if i % 2 else ""
+        delay = "\n    delay: 0.002" if i % 6 == 5 else ""
+        loops.append(
+            f"  axis-{i}:\n"
+            f'    plant: "{20 + i}/(s*({tau}*s + 1)){lag}"\n'
+            f'    controller: "K"\n'
+            f"    gain: {{symbol: K, nominal: {0.5 + 0.1 * (i % 7)}, limits: [0.01, 100]}}{delay}\n"
+        )
+        reqs.append(
+            f"  - id: AX-{i}-1\n    origin: test\n    loop: axis-{i}\n"
+            f"    tracking: {{reference: ramp, magnitude: 10, max_error: {0.2 + 0.05 * (i % 5)}}}\n"
+            f"    verification: {{method: analysis}}\n"
+            f"  - id: AX-{i}-2\n    origin: test\n    loop: axis-{i}\n"
+            f"    error_constants: {{min_kv: {10 + i}}}\n"
+            f"    verification: {{method: analysis}}\n"
+            f"  - id: AX-{i}-3\n    origin: test\n    loop: axis-{i}\n"
+            f"    margins: {{min_gain_margin_db: 6, min_phase_margin_deg: {30 + i % 4 * 5}}}\n"
+            f"    verification: {{method: analysis}}\n"
+        )
+    return "speclint: 1\nloops:\n" + "".join(loops) + "requirements:\n" + "".join(reqs)
+
+
+def test_two_workers_give_the_serial_answer(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "axes.yaml").write_text(_loops_file(30))
+    serial = _check("axes.yaml", "--no-cache", "--jobs", "1")
+    parallel = _check("axes.yaml", "--no-cache", "--jobs", "2")
+    assert parallel == serial
+    assert len(json.loads(serial[1])["loops"]) == 30
+    # The same through the cache: entries written by workers read back identically.
+    assert _check("axes.yaml", "--jobs", "2") == serial
+    assert _check("axes.yaml", "--jobs", "2") == serial
+
+
+def test_the_default_uses_workers_only_for_many_loops():
+    assert speclint.pipeline.default_jobs(1) == 1
+    assert speclint.pipeline.default_jobs(23) == 1
+    assert speclint.pipeline.default_jobs(500) == speclint.pipeline.usable_cores()

@@ -1,0 +1,119 @@
+"""What a run imports and what concurrent runs leave behind, seen from real child processes.
+
+A pre-commit hook pays for every import on every commit: a run that only validates, or
+whose analyses are all in the cache, must not import sympy, numpy or scipy (about 1.5 s
+together, against a few hundred milliseconds for the whole warm run).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+from conftest import REPO
+
+HEAVY = ("sympy", "numpy", "scipy")
+VALIDATOR = ("jsonschema",)
+PROBE = (
+    "import sys, speclint.cli\n"
+    "code = speclint.cli.main({argv!r})\n"
+    "print(sorted(m for m in {heavy!r} if m in sys.modules))\n"
+    "print(code)\n"
+)
+TEXTUAL = """\
+speclint: 1
+title: Requirements without loops
+requirements:
+  - id: SYS-1
+    title: The machine wraps 120 packs a minute
+    origin: customer list, item 1
+    verification: {method: demonstration}
+  - id: SYS-2
+    title: Film changes without stopping
+    traces_to: [SYS-1]
+    verification: {method: inspection}
+"""
+
+
+def _env() -> dict[str, str]:
+    env = dict(os.environ)
+    env["PYTHONPATH"] = str(REPO) + os.pathsep + env.get("PYTHONPATH", "")
+    return env
+
+
+def _probe(cwd: Path, *argv: str, watch: tuple[str, ...] = HEAVY) -> tuple[list[str], int]:
+    """Run speclint.cli.main(argv) in a child process; which `watch` modules it imported."""
+    script = PROBE.format(argv=list(argv), heavy=watch)
+    done = subprocess.run(
+        [sys.executable, "-c", script],
+        cwd=cwd,
+        env=_env(),
+        capture_output=True,
+        text=True,
+        timeout=300,
+        check=False,
+    )
+    assert done.returncode == 0, done.stderr
+    lines = done.stdout.strip().splitlines()
+    return json.loads(lines[-2].replace("'", '"')), int(lines[-1])
+
+
+def _demo(tmp_path: Path) -> Path:
+    shutil.copytree(REPO / "examples", tmp_path / "examples")
+    (tmp_path / "pyproject.toml").write_text('[tool.speclint]\npaths = ["examples"]\n')
+    return tmp_path
+
+
+def test_a_run_that_only_validates_imports_no_analysis_library(tmp_path):
+    (tmp_path / "system.yaml").write_text(TEXTUAL)
+    assert _probe(tmp_path, "check", "system.yaml", "--output", "out.txt") == ([], 0)
+    broken = TEXTUAL.replace("origin:", "orign:")
+    (tmp_path / "broken.yaml").write_text(broken)
+    assert _probe(tmp_path, "check", "broken.yaml", "--format", "json", "-o", "b.json") == ([], 1)
+
+
+def test_a_warm_run_imports_no_analysis_library(tmp_path):
+    root = _demo(tmp_path)
+    cold, code = _probe(root, "check", "--format", "json", "--output", "cold.json")
+    assert cold == sorted(HEAVY), "the cold run analyses, so it imports them"
+    warm, warm_code = _probe(
+        root, "check", "--format", "json", "--output", "warm.json", watch=HEAVY + VALIDATOR
+    )
+    assert (warm, warm_code) == ([], code)  # unchanged files are not validated again either
+    assert (root / "warm.json").read_bytes() == (root / "cold.json").read_bytes()
+    # The console report and the matrix take the same path.
+    assert _probe(root, "check", "--output", "console.txt")[0] == []
+    assert _probe(root, "matrix", "--output", "MATRIX.md")[0] == []
+
+
+def test_two_runs_at_once_leave_valid_entries(tmp_path):
+    root = _demo(tmp_path)
+    command = [sys.executable, "-m", "speclint", "check", "--format", "json", "--output"]
+    runs = [
+        subprocess.Popen([*command, f"out{i}.json"], cwd=root, env=_env(), stderr=subprocess.PIPE)
+        for i in range(2)
+    ]
+    codes = [run.wait(timeout=300) for run in runs]
+    for run in runs:
+        assert run.stderr is not None
+        assert b"Traceback" not in run.stderr.read()
+        run.stderr.close()
+    assert codes[0] == codes[1] == 1  # the demo carries deliberate errors
+    first = (root / "out0.json").read_bytes()
+    assert (root / "out1.json").read_bytes() == first
+    entries = sorted((root / ".speclint_cache").rglob("*.json"))
+    assert entries and not list((root / ".speclint_cache").rglob("*.tmp"))
+    for entry in entries:
+        assert json.loads(entry.read_text())["key"] == entry.stem
+    # What they left is what a fresh analysis gives, and a third run needs nothing more.
+    fresh = subprocess.run(
+        [*command, "fresh.json", "--no-cache"], cwd=root, env=_env(), check=False
+    )
+    assert fresh.returncode == 1
+    assert (root / "fresh.json").read_bytes() == first
+    assert _probe(root, "check", "--format", "json", "--output", "third.json") == ([], 1)
+    assert (root / "third.json").read_bytes() == first
