@@ -207,7 +207,10 @@ def test_hostile_text_is_refused_fast(text: str) -> None:
     assert isinstance(result, ExprError)
     assert result.kind in KINDS
     assert 0 <= result.offset <= min(len(text), MAX_LENGTH)
-    assert elapsed < 0.05, f"{elapsed * 1000:.1f} ms"
+    # A guard against a hang or a runaway computation, far above the milliseconds these
+    # take, so that a loaded CI machine cannot fail it; speed itself is measured by
+    # benchmarks/hostile_corpus.py, not asserted here.
+    assert elapsed < 2.0, f"{elapsed * 1000:.1f} ms"
 
 
 def test_refusal_kinds() -> None:
