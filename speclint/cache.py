@@ -13,6 +13,7 @@ from __future__ import annotations
 import dataclasses
 import functools
 import hashlib
+import hmac
 import json
 import os
 import shutil
@@ -74,8 +75,8 @@ class Cache:
 
     def get(self, key: str) -> tuple[LoopResult, list[RequirementResult], list[Finding]] | None:
         try:
-            entry = json.loads(self._path(key).read_text(encoding="utf-8"))
-            if entry.get("key") != key or entry.get("format") != ENTRY_FORMAT:
+            entry = self._read(key)
+            if entry is None:
                 return None
             loop = _loop_from(entry["loop"])
             reqs = [_requirement_from(r) for r in entry["requirements"]]
@@ -87,8 +88,8 @@ class Cache:
     def get_validation(self, key: str) -> tuple[list[Finding], set[DataPath]] | None:
         """A spec file's validation findings and flagged paths, stored under `key`."""
         try:
-            entry = json.loads(self._path(key).read_text(encoding="utf-8"))
-            if entry.get("key") != key or entry.get("format") != ENTRY_FORMAT:
+            entry = self._read(key)
+            if entry is None:
                 return None
             found = [_finding_from(f) for f in entry["validation"]]
             flagged = {_data_path(p) for p in entry["flagged"]}
@@ -119,7 +120,8 @@ class Cache:
 
     def _write(self, key: str, entry: dict[str, Any]) -> None:
         try:
-            text = json.dumps(entry, allow_nan=True)
+            body = json.dumps(entry, allow_nan=True)
+            text = f"{_seal(body)}\n{body}"
             path = self._path(key)
             path.parent.mkdir(parents=True, exist_ok=True)
             if path.is_dir() and not path.is_symlink():
@@ -137,6 +139,18 @@ class Cache:
         except OSError:
             return  # a read-only checkout still gets its answers, only slower
 
+    def _read(self, key: str) -> dict[str, Any] | None:
+        """The entry under `key` if this machine wrote it; None for anything else."""
+        seal, _, body = self._path(key).read_text(encoding="utf-8").partition("\n")
+        if not hmac.compare_digest(seal, _seal(body)):
+            return None  # not written here: perhaps committed by someone, never trusted
+        entry = json.loads(body)
+        if not isinstance(entry, dict) or entry.get("key") != key:
+            return None
+        if entry.get("format") != ENTRY_FORMAT:
+            return None
+        return entry
+
     def _path(self, key: str) -> Path:
         return self.folder / f"v{ENTRY_FORMAT}" / key[:2] / f"{key}.json"
 
@@ -147,6 +161,44 @@ class Cache:
 
 
 DataPath = tuple[str | int, ...]
+
+
+def _seal(body: str) -> str:
+    return hmac.new(_machine_secret(), body.encode("utf-8"), hashlib.sha256).hexdigest()
+
+
+@functools.cache
+def _machine_secret() -> bytes:
+    """A random key kept in the user's own cache folder, outside any repository.
+
+    Entries are sealed with it, so an entry that arrives with the repository (committed in
+    a pull request, say, with a verdict of its author's choosing) fails its seal and is
+    analysed afresh: the cache can save time, never change an answer. Where no key can be
+    kept, a key for this run alone still seals what this run writes.
+    """
+    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+    path = Path(base) / "speclint" / "seal-key"
+    try:
+        secret = path.read_bytes()
+        if len(secret) >= 32:
+            return secret
+    except OSError:
+        pass
+    secret = os.urandom(32)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(secret)
+    except FileExistsError:
+        try:  # another run made it first: use theirs, so both runs share entries
+            kept = path.read_bytes()
+            return kept if len(kept) >= 32 else secret
+        except OSError:
+            return secret
+    except OSError:
+        return secret
+    return secret
 
 
 def _data_path(value: Any) -> DataPath:

@@ -1,4 +1,4 @@
-"""Command line: ``speclint check``, ``rules``, ``schema``, ``stamp``, ``matrix``.
+"""Command line: ``speclint check``, ``explain``, ``rules``, ``schema``, ``stamp``, ``matrix``.
 
 ``main(argv, stdout, stderr) -> int`` does all the work and never exits, so tests call it
 directly; exit codes are decided in one place:
@@ -24,6 +24,7 @@ from speclint.report import REPORTERS, Settings
 from speclint.rules import RULES
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+EXIT_INTERNAL = 2  # shares the code of a usage error: either way the run proved nothing
 
 
 class UsageError(Exception):
@@ -89,6 +90,18 @@ def _parser(stdout: TextIO) -> argparse.ArgumentParser:
         "(and on what their changes reach in other files); for pre-commit hooks",
     )
 
+    explain = sub.add_parser(
+        "explain", help="show how one loop's figures and verdicts are derived, step by step"
+    )
+    explain.add_argument("name", metavar="NAME", help="a loop name or a requirement ID")
+    explain.add_argument(
+        "paths", nargs="*", help="spec files or folders (default: the configured paths)"
+    )
+    explain.add_argument("--format", choices=["console", "json"], default="console")
+    explain.add_argument(
+        "--config", metavar="FILE", help="use this speclint.toml or pyproject.toml"
+    )
+
     rules = sub.add_parser("rules", help="list the finding codes")
     rules.add_argument("--format", choices=["text", "json"], default="text")
 
@@ -129,7 +142,9 @@ def main(
         args, extra = _parser(stdout).parse_known_args(argv)
         # Paths may come after options (`check --format json a.yaml b.yaml`): argparse
         # leaves the later ones over; anything else left over is a real mistake.
-        positional = {"check": "paths", "matrix": "paths", "stamp": "ids"}.get(args.command)
+        positional = {"check": "paths", "explain": "paths", "matrix": "paths", "stamp": "ids"}.get(
+            args.command
+        )
         stray = [e for e in extra if e.startswith("-") or positional is None]
         if stray:
             raise UsageError(f"unrecognised arguments: {' '.join(stray)}")
@@ -137,6 +152,8 @@ def main(
             setattr(args, positional, [*getattr(args, positional), *extra])
         if args.command == "check":
             return _check(args, stdout)
+        if args.command == "explain":
+            return _explain(args, stdout)
         if args.command == "rules":
             return _rules(args, stdout)
         if args.command == "schema":
@@ -158,7 +175,7 @@ def main(
             "please report it as a bug with the command line and the spec files involved",
             file=stderr,
         )
-        return EXIT_USAGE
+        return EXIT_INTERNAL
 
 
 def entry() -> NoReturn:
@@ -193,6 +210,8 @@ def _check(args: argparse.Namespace, stdout: TextIO) -> int:
         write_atomically(Path(args.output), text)
     else:
         stdout.write(text)
+    if any(f.rule == "SL001" for f in result.findings):
+        return EXIT_INTERNAL  # the report is written, but a bug of ours fails the run
     failing = any(f.severity.rank >= fail_on.rank for f in result.findings)
     return EXIT_FINDINGS if failing else EXIT_CLEAN
 
@@ -219,6 +238,28 @@ def write_atomically(path: Path, text: str) -> None:
     except OSError as exc:
         Path(tmp).unlink(missing_ok=True)
         raise UsageError(f"cannot write {path}: {exc.strerror}") from None
+
+
+def _explain(args: argparse.Namespace, stdout: TextIO) -> int:
+    import json
+
+    from speclint.explain import Refusal, as_json, explain
+    from speclint.report import CAUTION
+    from speclint.report.console import safe
+    from speclint.report.explain_console import render
+
+    cwd = Path.cwd()
+    config = find_config(cwd, Path(args.config) if args.config else None)
+    item = explain(config, args.name, args.paths, cwd)
+    if isinstance(item, Refusal) and item.usage:
+        raise UsageError(f"explain: {safe(item.message)}")
+    if args.format == "json":
+        document = as_json(item, __version__, CAUTION)
+        stdout.write(json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
+    else:
+        width = _terminal_width() if stdout.isatty() else None
+        stdout.write(render(item, Settings(__version__, width=width)))
+    return EXIT_FINDINGS if isinstance(item, Refusal) else EXIT_CLEAN
 
 
 def _rules(args: argparse.Namespace, stdout: TextIO) -> int:

@@ -23,7 +23,8 @@ Limits: MAX_LENGTH characters, MAX_NODES tree nodes, exponent MAX_EXPONENT, degr
 MAX_DEGREE in s and in the gain, MAX_PAREN_DEPTH nested brackets, MAX_TREE_DEPTH levels of
 operators, MAX_DIGITS digits per number, decimal exponents within ±MAX_DECIMAL_EXPONENT, and
 coefficients of at most MAX_COEFF_BITS bits. Together they bound the work of every
-operation, so any input is accepted or refused in milliseconds.
+operation, so any input is accepted or refused in milliseconds. Coefficients (and numbers)
+also keep within 10^±MAX_MAGNITUDE, so that the loop's figures fit double precision.
 """
 
 from __future__ import annotations
@@ -46,8 +47,12 @@ MAX_DEGREE = 40
 MAX_PAREN_DEPTH = 50
 MAX_TREE_DEPTH = 100
 MAX_DIGITS = 30
-MAX_DECIMAL_EXPONENT = 300
+MAX_DECIMAL_EXPONENT = 100
 MAX_COEFF_BITS = 4000
+# Every non-zero coefficient of a block, as multiplied out, lies within 10^±MAX_MAGNITUDE: the
+# frequency analysis and every reported figure work in double precision (about 10^±308),
+# and a loop multiplies up to three blocks together.
+MAX_MAGNITUDE = 100
 
 KINDS = ("syntax", "unknown-name", "limit", "division-by-zero", "not-rational", "zero")
 
@@ -380,7 +385,7 @@ class _Reader:
             raise self._disallowed(node)
         end = node.end_col_offset if node.end_col_offset is not None else len(self.source)
         number = self._number(node, self.source[node.col_offset : end])
-        return Ratio(_constant_poly(number), poly(1))
+        return self._verified(node, Ratio(_constant_poly(number), poly(1)))
 
     def _number(self, node: ast.AST, literal: str) -> Fraction:
         match = _NUMBER.fullmatch(literal)
@@ -447,10 +452,20 @@ class _Reader:
         for p in (result.num, result.den):
             if _bits(p) > MAX_COEFF_BITS:
                 raise self._refuse("limit", node, _TOO_BIG)
+            for c in p.coeffs():
+                size = abs(sympy.Rational(c))
+                if size and not _SMALLEST <= size <= _LARGEST:
+                    raise self._refuse("limit", node, _OUT_OF_RANGE)
         return result
 
 
 _TOO_BIG = f"the numbers in this expression grow beyond {MAX_COEFF_BITS} bits"
+_OUT_OF_RANGE = (
+    f"a coefficient here leaves the range 1e-{MAX_MAGNITUDE} to 1e{MAX_MAGNITUDE}; "
+    "rescale the model (its units)"
+)
+_LARGEST = sympy.Integer(10) ** MAX_MAGNITUDE
+_SMALLEST = 1 / _LARGEST
 
 
 def _constant_poly(value: Fraction) -> sympy.Poly:

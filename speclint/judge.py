@@ -10,6 +10,9 @@ together. The steps:
 3. for each criterion, the set of gains where it holds, and its value at the nominal gain;
 4. statuses, admissible gains and conflicts (``speclint.analysis.feasibility``).
 
+`speclint check` keeps the records (:class:`Outcome`); `speclint explain` also reads the
+exact objects they were made from (:class:`Workings`), so both show one computation.
+
 Steady-state figures of an unstable loop do not exist: its criteria report ``achieved``
 as None. Exact values become floats only when they are put into the result records.
 """
@@ -24,6 +27,7 @@ import sympy
 from speclint.analysis import feasibility, margins, stability, steady
 from speclint.analysis.algebra import K, LoopAlgebra, Ratio, improper_parts
 from speclint.analysis.gainset import GainSet, format_number, to_float
+from speclint.analysis.margins import DelayedStability
 from speclint.expr import ExprError, common_factor, parse_block
 from speclint.findings import Finding
 from speclint.model import (
@@ -63,6 +67,8 @@ class Outcome:
     loop: LoopResult
     requirements: list[RequirementResult]
     findings: list[Finding] = field(default_factory=list)
+    # The exact objects behind the records; None when the model could not be read.
+    workings: Workings | None = None
 
 
 def unanalysed_loop(loop: Loop) -> LoopResult:
@@ -90,9 +96,10 @@ def judge_loop(loop: Loop, requirements: list[Requirement]) -> Outcome:
     if model is None:
         why = f"loop {loop.name!r} cannot be analysed (see the findings)"
         return Outcome(unanalysed_loop(loop), [invalid(r, why) for r in requirements], found)
-    figures = _Figures.of(loop, model, found)
-    results = _verdicts(loop, model, figures, requirements, found)
-    return Outcome(figures.result(loop, model), results, found)
+    figures = Figures.of(loop, model, found)
+    results, limits, decided = _verdicts(loop, model, figures, requirements, found)
+    workings = Workings(model, figures, limits, decided)
+    return Outcome(figures.result(loop, model), results, found, workings)
 
 
 # -- 1. the model ------------------------------------------------------------------------
@@ -175,18 +182,26 @@ def _show_poly(p: sympy.Poly, symbol: str | None) -> str:
 
 
 @dataclass(slots=True)
-class _Figures:
+class Figures:
+    """A loop's exact figures at the nominal gain, and how its stability was decided."""
+
     steady: steady.SteadyState
     stable: GainSet | None  # None: not decided
     nominal_stable: bool | None
     stability_note: str | None
     margins: margins.Margins | None
+    routh: stability.StableSet | None = None  # without dead time
+    nyquist: DelayedStability | None = None  # with dead time
+    hidden: tuple[stability.HiddenMode, ...] = ()
+    margins_unsupported: str | None = None
 
     @staticmethod
-    def of(loop: Loop, model: LoopAlgebra, found: list[Finding]) -> _Figures:
+    def of(loop: Loop, model: LoopAlgebra, found: list[Finding]) -> Figures:
         symbol = model.gain_symbol or "K"
         ss = steady.steady_state(model)
         note = None
+        exact_set = None
+        delayed = None
         if model.delay:
             delayed = margins.stable_gains_delayed(model)
             stable, note = delayed.gains, delayed.unsupported
@@ -209,7 +224,8 @@ class _Figures:
         if note is not None:
             msg = f"loops.{loop.name}: closed-loop stability not decided: {note}"
             found.append(finding("SL406", msg, loop.location, subject=loop.name))
-        for mode in stability.hidden_modes(model):
+        hidden = tuple(stability.hidden_modes(model))
+        for mode in hidden:
             msg = f"loops.{loop.name}: {mode.describe()}"
             found.append(finding("SL405", msg, loop.location, subject=loop.name))
             if mode.unstable:
@@ -229,9 +245,11 @@ class _Figures:
             place = loop.places.get("gain.nominal", loop.location)
             found.append(finding("SL404", msg, place, subject=loop.name))
         found_margins = None
+        margins_unsupported = None
         try:
             found_margins = margins.margins_at(model, model.nominal)
         except margins.MarginsUnsupported as exc:
+            margins_unsupported = str(exc)
             msg = f"loops.{loop.name}: margins not computed: {exc}"
             found.append(finding("SL406", msg, loop.location, subject=loop.name))
         if found_margins is not None:
@@ -243,7 +261,17 @@ class _Figures:
                         "SL501", f"loops.{loop.name}: {note_text}", loop.location, subject=loop.name
                     )
                 )
-        return _Figures(ss, stable, nominal_stable, note, found_margins)
+        return Figures(
+            ss,
+            stable,
+            nominal_stable,
+            note,
+            found_margins,
+            exact_set,
+            delayed,
+            hidden,
+            margins_unsupported,
+        )
 
     def result(self, loop: Loop, model: LoopAlgebra) -> LoopResult:
         symbol = model.gain_symbol
@@ -312,7 +340,7 @@ def _floats(gains: GainSet) -> tuple[Interval, ...]:
 
 
 @dataclass(slots=True)
-class _Limit:
+class Limit:
     """One limit of a requirement, ready for the feasibility logic and the report."""
 
     kind: str
@@ -325,8 +353,8 @@ class _Limit:
     detail: dict[str, str]
 
 
-def _limits(req: Requirement, model: LoopAlgebra, fig: _Figures) -> list[_Limit]:
-    out: list[_Limit] = []
+def _limits(req: Requirement, model: LoopAlgebra, fig: Figures) -> list[Limit]:
+    out: list[Limit] = []
     stable = fig.nominal_stable is True
     for crit in req.criteria:
         if isinstance(crit, Tracking):
@@ -340,17 +368,19 @@ def _limits(req: Requirement, model: LoopAlgebra, fig: _Figures) -> list[_Limit]
     return out
 
 
-def _tracking(crit: Tracking, model: LoopAlgebra, fig: _Figures, stable: bool) -> _Limit:
+def _tracking(crit: Tracking, model: LoopAlgebra, fig: Figures, stable: bool) -> Limit:
     ref, r, limit = crit.reference, crit.magnitude, crit.max_error
     error = steady.tracking_error(fig.steady, ref, r)
     label = f"{ref} error ≤ {_num(limit)}"
     detail = {"reference": ref, "magnitude": _num(r)}
+    if stable:
+        detail["achieved_exact"] = _text(error)
     if crit.percent is not None:
         detail["limit"] = f"{_num(crit.percent)}% of R"
     # The reason is asked for only when no gain meets the limit (it is None otherwise, and
     # would compute the same gain set a second time to find that out).
     gains = steady.tracking_gains(model, ref, r, limit)
-    return _Limit(
+    return Limit(
         "tracking",
         label,
         gains,
@@ -362,7 +392,7 @@ def _tracking(crit: Tracking, model: LoopAlgebra, fig: _Figures, stable: bool) -
     )
 
 
-def _constants(crit: ErrorConstants, model: LoopAlgebra, fig: _Figures) -> list[_Limit]:
+def _constants(crit: ErrorConstants, model: LoopAlgebra, fig: Figures) -> list[Limit]:
     out = []
     for which, minimum in (("kp", crit.min_kp), ("kv", crit.min_kv), ("ka", crit.min_ka)):
         if minimum is None:
@@ -370,7 +400,7 @@ def _constants(crit: ErrorConstants, model: LoopAlgebra, fig: _Figures) -> list[
         value = getattr(fig.steady, which)
         gains = steady.constant_gains(model, which, minimum)
         out.append(
-            _Limit(
+            Limit(
                 "error_constants",
                 f"{_CONSTANT_LABEL[which]} ≥ {_num(minimum)}",
                 gains,
@@ -380,19 +410,19 @@ def _constants(crit: ErrorConstants, model: LoopAlgebra, fig: _Figures) -> list[
                 float(minimum),
                 to_float(value),
                 bool(value >= _qq(minimum)),
-                {"constant": which},
+                {"constant": which, "achieved_exact": _text(value)},
             )
         )
     return out
 
 
-def _disturbance(crit: Disturbance, model: LoopAlgebra, stable: bool) -> _Limit:
+def _disturbance(crit: Disturbance, model: LoopAlgebra, stable: bool) -> Limit:
     deviation = steady.disturbance_error(model, crit.magnitude)
     gains = steady.disturbance_gains(model, crit.magnitude, crit.max_error)
     why = None
     if gains.is_empty():
         why = steady.why_disturbance_unreachable(model, crit.magnitude, crit.max_error)
-    return _Limit(
+    return Limit(
         "disturbance",
         f"disturbance deviation ≤ {_num(crit.max_error)}",
         gains,
@@ -400,11 +430,12 @@ def _disturbance(crit: Disturbance, model: LoopAlgebra, stable: bool) -> _Limit:
         float(crit.max_error),
         to_float(deviation) if stable else None,
         bool(abs(deviation) <= _qq(crit.max_error)) if stable else None,
-        {"input": crit.input, "magnitude": _num(crit.magnitude)},
+        {"input": crit.input, "magnitude": _num(crit.magnitude)}
+        | ({"achieved_exact": _text(deviation)} if stable else {}),
     )
 
 
-def _margin_limits(crit: MarginLimits, model: LoopAlgebra, fig: _Figures) -> list[_Limit]:
+def _margin_limits(crit: MarginLimits, model: LoopAlgebra, fig: Figures) -> list[Limit]:
     out = []
     for key, (figure_key, template) in _MARGIN_LABEL.items():
         bound = getattr(crit, key)
@@ -422,7 +453,7 @@ def _margin_limits(crit: MarginLimits, model: LoopAlgebra, fig: _Figures) -> lis
                 achieved <= float(bound) if key.startswith("max") else abs(achieved) >= float(bound)
             )
         out.append(
-            _Limit(
+            Limit(
                 "margins",
                 template.format(_num(bound)),
                 gains,
@@ -436,17 +467,32 @@ def _margin_limits(crit: MarginLimits, model: LoopAlgebra, fig: _Figures) -> lis
     return out
 
 
+@dataclass(slots=True)
+class Workings:
+    """The exact objects one loop's records come from (what `speclint explain` shows).
+
+    ``limits`` holds, by requirement id, the limits of each requirement with criteria;
+    ``feasibility`` the verdicts over them, None when the loop's stability is undecided.
+    """
+
+    model: LoopAlgebra
+    figures: Figures
+    limits: dict[str, list[Limit]]
+    feasibility: feasibility.LoopFeasibility | None
+
+
 def _verdicts(
     loop: Loop,
     model: LoopAlgebra,
-    fig: _Figures,
+    fig: Figures,
     requirements: list[Requirement],
     found: list[Finding],
-) -> list[RequirementResult]:
+) -> tuple[list[RequirementResult], dict[str, list[Limit]], feasibility.LoopFeasibility | None]:
     symbol = model.gain_symbol or "K"
     analysed = [r for r in requirements if r.criteria]
     limits = {r.id: _limits(r, model, fig) for r in analysed}
     results: dict[str, RequirementResult] = {}
+    decided = None
     if fig.stable is None:
         for req in analysed:
             results[req.id] = _undecided(req, limits[req.id])
@@ -495,10 +541,10 @@ def _verdicts(
             out.append(
                 RequirementResult(req.id, req.location.path, req.location.line or 0, req.loop, None)
             )
-    return out
+    return out, limits, decided
 
 
-def _undecided(req: Requirement, limits: list[_Limit]) -> RequirementResult:
+def _undecided(req: Requirement, limits: list[Limit]) -> RequirementResult:
     criteria = tuple(
         CriterionResult(x.kind, x.required, x.achieved, x.met, None, {"label": x.label, **x.detail})
         for x in limits

@@ -38,6 +38,10 @@ MAX_DEPTH = 32
 MAX_NODES = 100_000
 MAX_NUMBER_DIGITS = 60
 MAX_DECIMAL_EXPONENT = 400
+# Every number other than 0 lies within 10^±MAX_MAGNITUDE: the span of the SI prefixes
+# (quecto to quetta) holds any measurement a loop spec needs, and keeps each number, and
+# products of a few, well inside double precision (about 10^±308) where figures are shown.
+MAX_MAGNITUDE = 30
 # Above this bound the cheap nesting scan cannot vouch for libyaml.
 _C_PARSER_SCAN_BOUND = 200
 
@@ -108,22 +112,32 @@ def _encoding_finding(path: str, raw: bytes, exc: UnicodeDecodeError) -> Finding
     )
 
 
-# C0 controls other than tab, LF and CR; DEL; C1 controls; a byte-order mark after the start.
-_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ufeff]")
+# C0 controls other than tab, LF and CR; DEL; C1 controls; a byte-order mark after the start;
+# the bidirectional embeddings, overrides and isolates, which make text display in an order
+# other than the one it is read in (a reviewer would see one spec, speclint another).
+_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ufeff\u202a-\u202e\u2066-\u2069]")
+# What a double-quoted scalar may not produce through its escapes (\e, \x1b, \u202e, ...):
+# the same, and CR, which rewrites a terminal line. A key holds no control at all.
+_VALUE_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\ufeff\u202a-\u202e\u2066-\u2069]")
+_KEY_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f\ufeff\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+
+
+def _describe_control(char: str) -> str:
+    if char == "\ufeff":
+        return "a byte-order mark (U+FEFF)"
+    if "\u202a" <= char <= "\u202e" or "\u2066" <= char <= "\u2069":
+        return f"bidirectional control U+{ord(char):04X}"
+    return f"control character U+{ord(char):04X}"
 
 
 def _control_character(path: str, text: str) -> Finding | None:
     match = _CONTROL.search(text)
     if match is None:
         return None
-    char = match.group()
     line0, col0 = _position(text, match.start())
-    what = (
-        "a byte-order mark (U+FEFF)" if char == "\ufeff" else f"control character U+{ord(char):04X}"
-    )
     return finding(
         "SL113",
-        f"{what} in the text; it would hide inside a key or a value",
+        f"{_describe_control(match.group())} in the text; it would hide inside a key or a value",
         Location.from_mark(path, line0, col0),
         hint="delete it; a byte-order mark is allowed only as the very first character",
     )
@@ -140,6 +154,11 @@ def _position(text: str, index: int) -> Mark:
     return line, index - start
 
 
+# A block indicator (sequence entry, explicit key, value) followed by a blank or the end of
+# the line: each may open one more level on the same line ("- - - x", "? ? ? x", "-\t-\tx").
+_INDICATOR = re.compile(r"[-?:](?=[ \t]|$)", re.MULTILINE)
+
+
 def _nesting_bound(text: str) -> int:
     """A cheap upper bound on nesting depth: net open brackets plus block indicators."""
     depth = worst = 0
@@ -152,8 +171,8 @@ def _nesting_bound(text: str) -> int:
     block = 0
     for line in text.splitlines():
         stripped = line.lstrip(" ")
-        # Indentation, plus compact indicators such as "- - - x" on one line.
-        block = max(block, len(line) - len(stripped) + stripped.count("- ") + stripped.count(": "))
+        # Indentation, plus every indicator on the line (it overcounts, which is safe).
+        block = max(block, len(line) - len(stripped) + len(_INDICATOR.findall(stripped)))
     return worst + block
 
 
@@ -177,6 +196,9 @@ _OCT = re.compile(r"0o[0-7]+\Z")
 _HEX = re.compile(r"0x[0-9a-fA-F]+\Z")
 _FLOAT = re.compile(r"([-+]?)(\.[0-9]+|[0-9]+(?:\.[0-9]*)?)(?:[eE]([-+]?[0-9]+))?\Z")
 _NONFINITE = re.compile(r"[-+]?\.(?:inf|Inf|INF)\Z|\.(?:nan|NaN|NAN)\Z")
+
+_SMALLEST = Fraction(1, 10**MAX_MAGNITUDE)
+_LARGEST = Fraction(10**MAX_MAGNITUDE)
 
 _STANDARD_TAGS = {
     "tag:yaml.org,2002:str",
@@ -322,6 +344,8 @@ class _Composer:
         assert isinstance(event, yaml.ScalarEvent)
         plain = not event.style and tag is None
         if not plain:
+            if event.style == '"':
+                self._escaped_control(event.value, _VALUE_CONTROL, path, mark)
             return event.value, None
         value = self._resolve_plain(event.value, path, mark)
         if not isinstance(value, str):
@@ -342,7 +366,12 @@ class _Composer:
         if base:
             if len(text) > MAX_NUMBER_DIGITS:
                 return self._too_long(text, path, mark)
-            return int(text if base == 10 else text[2:], base)
+            number = int(text if base == 10 else text[2:], base)
+            return (
+                number
+                if abs(number) <= _LARGEST
+                else self._in_range(Fraction(number), text, path, mark)
+            )
         match = _FLOAT.match(text)
         if match:
             sign, mantissa, exponent = match.groups()
@@ -354,8 +383,21 @@ class _Composer:
             if abs(power) > MAX_DECIMAL_EXPONENT:
                 return self._too_long(text, path, mark)
             # Exact: Fraction reads the decimal text itself, so 0.1 is 1/10 and no float forms.
-            return Fraction(f"{sign}{mantissa.rstrip('.') or '0'}e{power}")
+            value = Fraction(f"{sign}{mantissa.rstrip('.') or '0'}e{power}")
+            return self._in_range(value, text, path, mark)
         return text
+
+    def _in_range(self, value: Fraction, text: str, path: Path, mark: Mark) -> Fraction | None:
+        size = abs(value)
+        if size == 0 or _SMALLEST <= size <= _LARGEST:
+            return value
+        self.doc.flagged.add(path)
+        msg = (
+            f"number {text} lies outside 1e-{MAX_MAGNITUDE} to 1e{MAX_MAGNITUDE} in magnitude; "
+            "speclint takes measurements within that range (or 0)"
+        )
+        self.findings.append(self._at("SL112", msg, mark, hint="check the unit and the exponent"))
+        return None
 
     def _too_long(self, text: str, path: Path, mark: Mark) -> None:
         self.doc.flagged.add(path)
@@ -365,6 +407,19 @@ class _Composer:
             f"±{MAX_DECIMAL_EXPONENT}; speclint takes measurements, not such numbers"
         )
         self.findings.append(self._at("SL112", msg, mark))
+
+    def _escaped_control(self, text: str, refused: re.Pattern[str], path: Path, mark: Mark) -> bool:
+        """Report a control character that an escape put into a quoted scalar."""
+        match = refused.search(text)
+        if match is None:
+            return False
+        self.doc.flagged.add(path)
+        msg = (
+            f"{_describe_control(match.group())} in a quoted {'key' if refused is _KEY_CONTROL else 'value'}; "
+            "it would reach terminals and logs"
+        )
+        self.findings.append(self._at("SL113", msg, mark, hint="delete the escape sequence"))
+        return True
 
     def _take_key(self, frame: _Frame, event: yaml.NodeEvent, mark: Mark) -> None:
         if not isinstance(event, yaml.ScalarEvent) or getattr(event, "tag", None) not in (
@@ -380,6 +435,9 @@ class _Composer:
         key = event.value  # the text as written: `1.10:` and `no:` stay strings
         assert isinstance(frame.container, dict)
         frame.key, frame.key_mark = key, mark
+        if self._escaped_control(key, _KEY_CONTROL, (*frame.path, key), mark):
+            frame.skip_value = True
+            return
         if key in frame.container:
             first = self.doc.key_marks.get((*frame.path, key), mark)
             msg = f'duplicate key "{key}"; the first stands on line {first[0] + 1}'

@@ -38,18 +38,7 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
     """Check the spec files that `given` (or the configuration) names."""
     options = options or Options()
     cache = Cache(config.root / config.cache_dir) if options.use_cache else None
-    files, empty = spec_files(config, given, cwd)
-    result = RunResult(files=[], findings=[])
-    for folder in empty:
-        result.findings.append(finding("SL002", f"{folder}: no spec files here", Location(folder)))
-    specs: list[SpecFile] = []
-    for path in files:
-        shown = display_path(path, cwd)
-        result.files.append(shown)
-        spec = _read_one(path, shown, result, cache)
-        if spec is not None:
-            specs.append(spec)
-    found = trace.index(specs, result.findings)
+    result, specs, found = read_specs(config, given, cwd, cache)
     for loop_result, req_results, loop_findings in _analyse_all(found, config, options):
         result.loops.append(loop_result)
         result.requirements.extend(req_results)
@@ -70,6 +59,27 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
     result.findings.sort(key=Finding.sort_key)
     result.requirements.sort(key=lambda r: (r.path, r.line))
     return result
+
+
+def read_specs(
+    config: Config, given: list[str], cwd: Path, cache: Cache | None = None
+) -> tuple[RunResult, list[SpecFile], trace.Index]:
+    """Load, validate, build and index the spec files; nothing analysed yet.
+
+    The result holds the files read and their findings so far.
+    """
+    files, empty = spec_files(config, given, cwd)
+    result = RunResult(files=[], findings=[])
+    for folder in empty:
+        result.findings.append(finding("SL002", f"{folder}: no spec files here", Location(folder)))
+    specs: list[SpecFile] = []
+    for path in files:
+        shown = display_path(path, cwd)
+        result.files.append(shown)
+        spec = _read_one(path, shown, result, cache)
+        if spec is not None:
+            specs.append(spec)
+    return result, specs, trace.index(specs, result.findings)
 
 
 def _read_one(
@@ -119,10 +129,13 @@ def _validated(doc: Document, shown: str, raw: bytes, cache: Cache | None) -> li
     return found
 
 
-def internal_error(shown: str, exc: BaseException) -> Finding:
-    message = f"internal error while checking this file ({type(exc).__name__}: {exc})"
+def internal_error(shown: str, exc: BaseException, where: Location | None = None) -> Finding:
+    """SL001: a bug of ours met while checking `shown`; the run reports it and exits 2."""
+    detail = str(exc)
+    detail = detail if len(detail) <= 200 else detail[:200] + "…"
+    message = f"internal error while checking {shown} ({type(exc).__name__}: {detail})"
     hint = "please report this as a bug, with the file if you can share it"
-    return finding("SL001", message, Location(shown, 1, 1), hint)
+    return finding("SL001", message, where or Location(shown, 1, 1), hint)
 
 
 Analysed = tuple[LoopResult, list[RequirementResult], list[Finding]]
@@ -130,6 +143,9 @@ Analysed = tuple[LoopResult, list[RequirementResult], list[Finding]]
 # Wall-clock budget for one loop's analysis. Degree and size caps keep honest models far
 # below it (milliseconds); it stops a pathological one from holding up CI.
 LOOP_BUDGET_S = 20.0
+# Once this many loops of one file have run out of their budget, the file's other loops are
+# not analysed: a file of 2,000 slow loops then costs about a minute, not eleven hours.
+MAX_EXPIRED_PER_FILE = 3
 
 
 def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[Analysed]:
@@ -149,22 +165,65 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
         if hit is None:
             work.append((len(out) - 1, loop, mine, key))
     jobs = options.jobs if options.jobs > 0 else default_jobs(len(work))
-    if jobs > 1 and len(work) > 1:
-        from concurrent.futures import ProcessPoolExecutor
+    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs)
+    for (slot, _, _, key), analysed in zip(work, done, strict=True):
+        out[slot] = analysed
+        if cache is not None and key is not None and not _has_internal_error(analysed):
+            cache.put(key, *analysed)
+    return [a for a in out if a is not None]
+
+
+def _run(tasks: list[tuple[Loop, list[Requirement]]], jobs: int) -> list[Analysed]:
+    """analyse_loop on every task, in worker processes when jobs > 1; a file whose loops keep
+    running out of budget has its remaining loops skipped (see MAX_EXPIRED_PER_FILE)."""
+    done: list[Analysed | None] = [None] * len(tasks)
+    expired: dict[str, int] = {}
+
+    def record(i: int, analysed: Analysed) -> bool:
+        """Keep the result; True when its file has now used up its allowance."""
+        done[i] = analysed
+        if any(f.rule == "SL407" for f in analysed[2]):
+            path = tasks[i][0].location.path
+            expired[path] = expired.get(path, 0) + 1
+            return expired[path] == MAX_EXPIRED_PER_FILE
+        return False
+
+    if jobs > 1 and len(tasks) > 1:
+        from concurrent.futures import ProcessPoolExecutor, as_completed
 
         # Import the analysis before the workers are forked: they then start at once and
         # share the libraries' pages with this process instead of each loading its own.
         from speclint import judge  # noqa: F401
 
         with ProcessPoolExecutor(max_workers=jobs) as pool:
-            done = list(pool.map(analyse_loop, [(w[1], w[2]) for w in work], chunksize=4))
+            futures = {pool.submit(analyse_loop, task): i for i, task in enumerate(tasks)}
+            for future in as_completed(futures):
+                if future.cancelled():
+                    continue
+                i = futures[future]
+                if record(i, future.result()):
+                    path = tasks[i][0].location.path
+                    for other, j in futures.items():
+                        if tasks[j][0].location.path == path:
+                            other.cancel()  # only those not yet started; the rest finish
     else:
-        done = [analyse_loop((loop, mine)) for _, loop, mine, _ in work]
-    for (slot, _, _, key), analysed in zip(work, done, strict=True):
-        out[slot] = analysed
-        if cache is not None and key is not None and not _has_internal_error(analysed):
-            cache.put(key, *analysed)
-    return [a for a in out if a is not None]
+        for i, task in enumerate(tasks):
+            if expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
+                record(i, analyse_loop(task))
+    return [d if d is not None else _skipped(*tasks[i]) for i, d in enumerate(done)]
+
+
+def _skipped(loop: Loop, requirements: list[Requirement]) -> Analysed:
+    from speclint import judge
+
+    msg = (
+        f"loops.{loop.name}: not analysed: {MAX_EXPIRED_PER_FILE} loops of this file already "
+        f"ran out of their {LOOP_BUDGET_S:g} s time budget"
+    )
+    hint = "simplify the slow loops first (lower degree, fewer constants)"
+    stopped = finding("SL407", msg, loop.location, hint, subject=loop.name)
+    why = "not analysed (time budget of the file)"
+    return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [stopped]
 
 
 def default_jobs(loops_to_analyse: int) -> int:
@@ -205,7 +264,7 @@ def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
         why = "the loop's analysis was stopped (time budget)"
         return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [stopped]
     except Exception as exc:  # a bug of ours: report it against the loop, go on with the rest
-        bug = internal_error(loop.location.path, exc)
+        bug = internal_error(loop.location.path, exc, loop.location)
         why = "internal error"
         return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [bug]
     finally:
@@ -213,27 +272,35 @@ def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
     return outcome.loop, outcome.requirements, outcome.findings
 
 
-class BudgetExceeded(Exception):
-    """A loop's analysis ran past its time budget."""
+class BudgetExceeded(BaseException):
+    """A loop's analysis ran past its time budget.
+
+    A BaseException, like KeyboardInterrupt, so that no ``except Exception`` inside the
+    libraries the analysis calls can swallow it and carry on past the budget.
+    """
 
 
 @contextmanager
 def time_budget(seconds: float) -> Iterator[None]:
     """Raise BudgetExceeded in this thread after `seconds` (POSIX main thread only; elsewhere
-    no budget applies)."""
+    no budget applies). Python handles the signal between bytecodes, so a single long call
+    into C code ends first; the size caps on models keep such calls short."""
     usable = hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
     if not usable:
         yield
         return
+    armed = [True]
 
     def expire(signum: int, frame: object) -> None:
-        raise BudgetExceeded
+        if armed[0]:  # a signal that lands after the budget closed is ignored
+            raise BudgetExceeded
 
     previous = signal.signal(signal.SIGALRM, expire)
     signal.setitimer(signal.ITIMER_REAL, seconds)
     try:
         yield
     finally:
+        armed[0] = False
         signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, previous)
 

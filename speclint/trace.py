@@ -26,13 +26,13 @@ from __future__ import annotations
 import difflib
 import re
 from collections import deque
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path, PurePosixPath, PureWindowsPath
 
 from speclint import fingerprint
-from speclint.discover import Config
+from speclint.discover import Config, ConfigError
 from speclint.findings import Finding, Location
 from speclint.model import (
     Criterion,
@@ -95,8 +95,9 @@ def check(specs: list[SpecFile], found: Index, config: Config) -> Checked:
     if config.id_pattern is not None:
         out.extend(_id_pattern(found, config.id_pattern))
     known = set(first) | {rid for rid, _ in found.broken_requirements}
+    suggest = _suggester(sorted(known))
     for req in found.requirements:
-        out.extend(_links(req, known))
+        out.extend(_links(req, known, suggest))
         out.extend(_unverified(req))
         out.extend(_evidence(req, config.root))
         out.extend(_stale_review(req, found))
@@ -121,11 +122,35 @@ def _place_key(req: Requirement) -> tuple[str, int, int]:
     return (req.location.path, req.location.line or 0, req.location.column or 0)
 
 
+# A spec set may define thousands of loops; a message names this many and counts the rest.
+LISTED_LOOPS = 12
+# A suggestion compares the dangling ID with every known one. Past this many dangling links in
+# a run a typo is no longer the likely cause (a missing file is), and suggestions stop, which
+# keeps a spec set of thousands of requirements from costing minutes.
+MAX_SUGGESTIONS = 50
+
+
+def _suggester(ordered: list[str]) -> Callable[[str], str | None]:
+    left = [MAX_SUGGESTIONS]
+
+    def suggest(target: str) -> str | None:
+        if left[0] <= 0:
+            return None
+        left[0] -= 1
+        close = difflib.get_close_matches(target, ordered, n=1)
+        return close[0] if close else None
+
+    return suggest
+
+
 def _unknown_loops(found: Index) -> Iterator[Finding]:
     loops = found.loops
+    names = sorted(loops)
+    known = ", ".join(names[:LISTED_LOOPS]) or "none"
+    if len(names) > LISTED_LOOPS:
+        known += f" and {len(names) - LISTED_LOOPS:,} more"
     for req in found.requirements:
         if req.loop is not None and req.loop not in loops and req.loop not in found.broken_loops:
-            known = ", ".join(sorted(loops)) or "none"
             msg = f"{req.id}: loop {req.loop!r} is not defined in the spec set (loops: {known})"
             yield finding("SL311", msg, req.place("loop"), subject=req.id)
 
@@ -143,15 +168,33 @@ def _duplicate_ids(found: Index) -> Iterator[Finding]:
             yield finding("SL601", msg, where, hint, subject=rid)
 
 
+# The configured id_pattern comes from the repository, so a pull request can change it: a
+# pattern that backtracks exponentially ("(a+)+b") would hold the run for ever. Legitimate
+# patterns match thousands of IDs in milliseconds.
+ID_PATTERN_BUDGET_S = 2.0
+
+
 def _id_pattern(found: Index, pattern: str) -> Iterator[Finding]:
+    from speclint.pipeline import BudgetExceeded, time_budget
+
     compiled = re.compile(pattern)
-    for req in found.requirements:
-        if compiled.fullmatch(req.id) is None:
-            msg = f"requirement ID {req.id!r} does not match the configured id_pattern {pattern!r}"
-            yield finding("SL602", msg, req.place("id"), subject=req.id)
+    try:
+        with time_budget(ID_PATTERN_BUDGET_S):
+            off = [req for req in found.requirements if compiled.fullmatch(req.id) is None]
+    except BudgetExceeded:
+        raise ConfigError(
+            f"id_pattern {pattern!r} took more than {ID_PATTERN_BUDGET_S:g} s to match the "
+            "requirement IDs; it backtracks (a repeated group holding a repetition, such as "
+            "(a+)+): write it without nesting"
+        ) from None
+    for req in off:
+        msg = f"requirement ID {req.id!r} does not match the configured id_pattern {pattern!r}"
+        yield finding("SL602", msg, req.place("id"), subject=req.id)
 
 
-def _links(req: Requirement, known: set[str]) -> Iterator[Finding]:
+def _links(
+    req: Requirement, known: set[str], suggest: Callable[[str], str | None]
+) -> Iterator[Finding]:
     if req.origin is None and not req.traces_to:
         msg = f"{req.id}: states neither an origin nor a traces_to link, so nothing says why it exists"
         hint = "give a root an origin (a customer document, a standard clause, a hazard item); trace any other requirement to its parent"
@@ -160,8 +203,8 @@ def _links(req: Requirement, known: set[str]) -> Iterator[Finding]:
         if target in known:
             continue
         msg = f"{req.id}: traces_to {target!r}, which no file of the spec set defines"
-        close = difflib.get_close_matches(target, sorted(known), n=1)
-        hint = f"did you mean {close[0]!r}?" if close else "check the ID, or add the requirement"
+        close = suggest(target)
+        hint = f"did you mean {close!r}?" if close else "check the ID, or add the requirement"
         yield finding("SL603", msg, req.place(f"traces_to[{i}]"), hint, subject=req.id)
 
 

@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import difflib
 import json
+import re
+from collections.abc import Iterator
 from fractions import Fraction
 from functools import cache
 from importlib.resources import files
@@ -38,9 +40,27 @@ def spec_schema() -> dict[str, Any]:
 
 @cache
 def _validator() -> Any:
-    from jsonschema import Draft202012Validator
+    from jsonschema import Draft202012Validator, validators
 
-    return Draft202012Validator(spec_schema())
+    checker = validators.extend(Draft202012Validator, {"pattern": _pattern})
+    return checker(spec_schema())
+
+
+@cache
+def _regex(pattern: str) -> re.Pattern[str]:
+    # JSON Schema patterns are ECMA-262, where a final `$` matches only at the end of the
+    # text; Python's `$` also matches before a final line break, so an ID written as a
+    # block scalar ("R-1\n") would pass. `\Z` is ECMA's `$`.
+    if pattern.endswith("$") and not pattern.endswith("\\$"):
+        pattern = pattern[:-1] + r"\Z"
+    return re.compile(pattern)
+
+
+def _pattern(validator: Any, pattern: str, instance: Any, schema: dict[str, Any]) -> Iterator[Any]:
+    from jsonschema.exceptions import ValidationError
+
+    if validator.is_type(instance, "string") and _regex(pattern).search(instance) is None:
+        yield ValidationError(f"does not match {pattern!r}")
 
 
 def restore_strings(doc: Document) -> None:
@@ -239,6 +259,16 @@ def _to_finding(error: Any, path: Path, doc: Document) -> Finding:
         return finding(
             "SL204", f"{where}: expected {forms}, got {_kind_of(value)}", doc.location(path)
         )
+    if keyword in ("maxItems", "maxProperties") and "prefixItems" not in schema:
+        # At the first entry over the limit, where the reader has to start cutting.
+        limit = error.validator_value
+        if isinstance(value, dict):
+            place = doc.location((*path, list(value)[limit]), key=True)
+        else:
+            place = doc.location((*path, limit))
+        what = "entries" if isinstance(value, dict) else "items"
+        msg = f"{where}: has {len(value):,} {what}; at most {limit:,} are allowed in one file"
+        return finding("SL204", msg, place, hint="split it into several spec files")
     return finding(
         "SL204",
         f"{where}: {_plain_words(keyword, error, value, schema, path, doc)}",
@@ -279,4 +309,6 @@ def _plain_words(
         return f"lists {show(dup)} more than once"
     if keyword == "const":
         return f"must be {error.validator_value}, got {shown}"
-    return str(error.message)
+    # jsonschema's own words quote the whole value, which may be a megabyte of YAML.
+    text = str(error.message)
+    return text if len(text) <= 200 else text[:200] + "…"

@@ -14,6 +14,31 @@ from speclint.cli import main
 
 REPO = Path(__file__).resolve().parent.parent
 
+# A spec repository split over files: loops in one, requirements on them in another, and a
+# file with a problem of its own (tests of --focus and of the pre-commit hook).
+_BELT_LOOPS = """\
+speclint: 1
+loops:
+  belt:
+    plant: "40/(s*(0.05*s + 1))"
+    controller: "K"
+    gain: {symbol: K, nominal: 8}
+"""
+_BELT_REQUIREMENTS = """\
+speclint: 1
+requirements:
+  - id: BELT-010
+    loop: belt
+    traces_to: [SYS-1]
+    tracking: {reference: ramp, magnitude: 500, max_error: 2}
+    verification: {method: analysis}
+  - id: SYS-1
+    origin: customer list, item 1
+"""
+# A file with a problem of its own, which a focused run on other files must not report.
+_OTHER_BROKEN = "speclint: 1\nrequirements:\n  - id: OTHER-1\n    origni: typo\n"
+SPLIT_SPECS = (_BELT_LOOPS, _BELT_REQUIREMENTS, _OTHER_BROKEN)
+
 
 class Run:
     """One `speclint check` on files written into a temporary folder."""

@@ -97,9 +97,14 @@ def _empty(path: Path) -> None:
 
 
 def _wrong_shape(path: Path) -> None:
-    entry = json.loads(path.read_text())
+    entry = _entry(path)
     entry["loop"] = [1, 2, 3]
     path.write_text(json.dumps(entry))
+
+
+def _entry(path: Path) -> dict:
+    """An entry's JSON body; its first line is the seal."""
+    return json.loads(path.read_text().partition("\n")[2])
 
 
 def _a_list(path: Path) -> None:
@@ -126,7 +131,7 @@ def test_a_corrupt_entry_is_ignored_and_rewritten(demo, spoil):
     assert _check()[1] == fresh
     for path in entries:
         assert path.is_file()
-        assert json.loads(path.read_text())["key"] == path.stem
+        assert _entry(path)["key"] == path.stem
 
 
 def test_a_foreign_entry_under_another_key_is_not_trusted(demo):
@@ -135,7 +140,7 @@ def test_a_foreign_entry_under_another_key_is_not_trusted(demo):
     first, second = _entries(demo)[:2]
     shutil.copyfile(first, second)  # right format, the other loop's analysis
     assert _check()[1] == fresh
-    assert json.loads(second.read_text())["key"] == second.stem
+    assert _entry(second)["key"] == second.stem
 
 
 def test_cache_dir_from_the_configuration(demo):
@@ -218,3 +223,20 @@ def test_the_default_uses_workers_only_for_many_loops():
     assert speclint.pipeline.default_jobs(1) == 1
     assert speclint.pipeline.default_jobs(23) == 1
     assert speclint.pipeline.default_jobs(500) == speclint.pipeline.usable_cores()
+
+
+def test_an_entry_that_arrives_with_the_repository_cannot_change_a_verdict(demo):
+    # A pull request could commit cache entries with verdicts of its author's choosing; the
+    # seal (a keyed hash with a key outside the repository) makes them count as misses.
+    fresh = _fresh()
+    assert '"status": "unreachable"' in fresh
+    _check()
+    forged_entries = 0
+    for path in _entries(demo):
+        seal, _, body = path.read_text().partition("\n")
+        forged = body.replace('"status": "unreachable"', '"status": "met"')
+        if forged != body:
+            path.write_text(f"{seal}\n{forged}")
+            forged_entries += 1
+    assert forged_entries > 0
+    assert _check()[1] == fresh

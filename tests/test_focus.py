@@ -10,29 +10,10 @@ from pathlib import Path
 
 import pytest
 
+from conftest import SPLIT_SPECS
 from speclint.cli import main
 
-LOOPS = """\
-speclint: 1
-loops:
-  belt:
-    plant: "40/(s*(0.05*s + 1))"
-    controller: "K"
-    gain: {symbol: K, nominal: 8}
-"""
-REQUIREMENTS = """\
-speclint: 1
-requirements:
-  - id: BELT-010
-    loop: belt
-    traces_to: [SYS-1]
-    tracking: {reference: ramp, magnitude: 500, max_error: 2}
-    verification: {method: analysis}
-  - id: SYS-1
-    origin: customer list, item 1
-"""
-# A file with a problem of its own, which a focused run on other files must not report.
-OTHER = "speclint: 1\nrequirements:\n  - id: OTHER-1\n    origni: typo\n"
+LOOPS, REQUIREMENTS, OTHER = SPLIT_SPECS
 
 
 @pytest.fixture

@@ -15,31 +15,11 @@ from pathlib import Path
 
 import pytest
 
-from conftest import REPO
+from conftest import REPO, SPLIT_SPECS
 
 pytestmark = pytest.mark.slow
 
-LOOPS = """\
-speclint: 1
-loops:
-  belt:
-    plant: "40/(s*(0.05*s + 1))"
-    controller: "K"
-    gain: {symbol: K, nominal: 8}
-"""
-REQUIREMENTS = """\
-speclint: 1
-requirements:
-  - id: BELT-010
-    loop: belt
-    traces_to: [SYS-1]
-    tracking: {reference: ramp, magnitude: 500, max_error: 0.8}
-    verification: {method: analysis}
-  - id: SYS-1
-    origin: customer list, item 1
-"""
-# Broken before the hook arrives: commits that do not touch it must still go through.
-OTHER = "speclint: 1\nrequirements:\n  - id: OTHER-1\n    origni: typo\n"
+LOOPS, REQUIREMENTS, OTHER = SPLIT_SPECS
 
 
 def _env(tmp_path: Path) -> dict[str, str]:

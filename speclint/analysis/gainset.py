@@ -13,7 +13,7 @@ display; they round to 15 significant digits (a double's faithful range).
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from fractions import Fraction
 from itertools import pairwise
@@ -233,11 +233,15 @@ class GainSet:
         """Interval ends as floats (15 significant digits; infinity as float inf)."""
         return [[to_float(iv.lo), to_float(iv.hi)] for iv in self.intervals]
 
-    def describe(self, symbol: str = "K") -> str:
-        """The set as an engineer writes it: '0 < K < 6', '2 ≤ K < 6 or K > 9', 'no gain'."""
+    def describe(self, symbol: str = "K", show: Callable[[Exact], str] | None = None) -> str:
+        """The set as an engineer writes it: '0 < K < 6', '2 ≤ K < 6 or K > 9', 'no gain'.
+
+        Ends are written by ``show`` (default: :func:`format_number`, 6 digits).
+        """
         if not self.intervals:
             return "no gain"
-        return " or ".join(_describe_interval(iv, symbol) for iv in self.intervals)
+        written = show or format_number
+        return " or ".join(_describe_interval(iv, symbol, written) for iv in self.intervals)
 
 
 class _SortKey:
@@ -286,19 +290,19 @@ def format_number(x: Exact, digits: int = 6) -> str:
     return f"{to_float(x):.{digits}g}"
 
 
-def _describe_interval(iv: Interval, symbol: str) -> str:
+def _describe_interval(iv: Interval, symbol: str, show: Callable[[Exact], str]) -> str:
     lo, hi = iv.lo, iv.hi
     if lo == hi:
-        return f"{symbol} = {format_number(lo)}"
+        return f"{symbol} = {show(lo)}"
     lo_op = "≤" if iv.lo_closed else "<"
     hi_op = "≤" if iv.hi_closed else "<"
     if hi is INF:
         if lo == -INF:
             return f"any {symbol}"
-        return f"{symbol} {'≥' if iv.lo_closed else '>'} {format_number(lo)}"
+        return f"{symbol} {'≥' if iv.lo_closed else '>'} {show(lo)}"
     if lo == -INF:
-        return f"{symbol} {hi_op} {format_number(hi)}"
-    return f"{format_number(lo)} {lo_op} {symbol} {hi_op} {format_number(hi)}"
+        return f"{symbol} {hi_op} {show(hi)}"
+    return f"{show(lo)} {lo_op} {symbol} {hi_op} {show(hi)}"
 
 
 def where_sign(poly: sympy.Poly, positive: bool, closed: bool) -> GainSet:

@@ -64,12 +64,14 @@ from __future__ import annotations
 
 import bisect
 import cmath
+import functools
 import itertools
 import math
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 from functools import lru_cache
+from typing import ParamSpec, TypeVar
 
 import numpy as np
 import numpy.typing as npt
@@ -84,6 +86,8 @@ W = sympy.Symbol("w")  # the angular frequency ω
 X = sympy.Symbol("x")  # ω², where every even polynomial in ω lives
 
 FloatArray = npt.NDArray[np.float64]
+_P = ParamSpec("_P")
+_T = TypeVar("_T")
 
 _TWO_PI = 2.0 * math.pi
 # Two phases closer than this (radians) count as equal: far below the 1e-13 rad the
@@ -96,6 +100,16 @@ _MAX_GRID = 400_000  # a guard on the sensitivity grid with dead time
 
 class MarginsUnsupported(ValueError):
     """The loop's form is outside what this analysis handles; the message says why."""
+
+
+_OUT_OF_RANGE = (
+    "the loop's coefficients, dead time or frequencies span more than double precision "
+    "can resolve; rescale the model (units) or drop negligible terms"
+)
+# The frequency analysis works in double precision (about 1e±308): coefficients and the dead
+# time must each be representable, and their ratios must leave room for the powers of ω that
+# an evaluation forms. Beyond this span a phase or magnitude is rounding noise.
+_FLOAT_SPAN = 1e150
 
 
 @dataclass(frozen=True, slots=True)
@@ -310,6 +324,22 @@ def _axis_roots(p: sympy.Poly) -> tuple[tuple[float, int], ...]:
     return tuple(out)
 
 
+def _in_double_precision(fn: Callable[_P, _T]) -> Callable[_P, _T]:
+    """Run a frequency analysis with floating-point overflow, division by zero and invalid
+    operations raised rather than carried along as inf or nan, and reported as the loop being
+    out of double precision's range: a figure built on such a value would be noise."""
+
+    @functools.wraps(fn)
+    def checked(*args: _P.args, **kwargs: _P.kwargs) -> _T:
+        try:
+            with np.errstate(over="raise", divide="raise", invalid="raise"):
+                return fn(*args, **kwargs)
+        except (OverflowError, ZeroDivisionError, FloatingPointError):
+            raise MarginsUnsupported(_OUT_OF_RANGE) from None
+
+    return checked
+
+
 # Scalar complex arithmetic in plain Python, bit for bit what numpy's scalar polyval and
 # complex division give (Horner from zero; Smith's division with a reciprocal, as numpy
 # does it), at a tenth of the cost per call: the phase and sensitivity searches call these
@@ -347,6 +377,17 @@ def _cdiv(a: complex, b: complex) -> complex:
 
 def _coeffs(p: sympy.Poly) -> FloatArray:
     return np.array([float(c) for c in p.all_coeffs()], dtype=np.float64)
+
+
+def _check_range(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> None:
+    """Refuse a loop whose numbers double precision cannot carry (see _FLOAT_SPAN)."""
+    sizes = [abs(sympy.Rational(c)) for p in (num, den) for c in p.coeffs() if c != 0]
+    if delay:
+        sizes.append(sympy.Rational(delay.numerator, delay.denominator))
+    if sizes and max(sizes) / min(sizes) > _FLOAT_SPAN:
+        raise MarginsUnsupported(_OUT_OF_RANGE)
+    if any(not 1 / _FLOAT_SPAN <= x <= _FLOAT_SPAN for x in sizes):
+        raise MarginsUnsupported(_OUT_OF_RANGE)
 
 
 # --------------------------------------------------------------------------------------------
@@ -454,6 +495,7 @@ def _numeric_roots(p: sympy.Poly, axis: tuple[tuple[float, int], ...]) -> tuple[
 
 @lru_cache(maxsize=256)
 def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
+    _check_range(num, den, delay)
     an, bn = _jw_parts(num)
     ad, bd = _jw_parts(den)
     axis_zeros = _axis_roots(num) if not num.is_zero else ()
@@ -626,8 +668,13 @@ def _solve_level(resp: _Resp, piece: _Piece, level: float) -> float:
         while math.copysign(1.0, f(hi)) == sign_lo:
             lo, hi = hi, 2.0 * hi
             if hi > 1e300:
-                raise ArithmeticError("phase level not reached")  # pragma: no cover
-    return float(brentq(f, lo, hi, xtol=1e-300, rtol=8.9e-16, maxiter=400))
+                # A dead time so short against the loop's dynamics that its phase reaches
+                # -180° only beyond double precision's range of frequencies.
+                raise MarginsUnsupported(_OUT_OF_RANGE)
+    try:
+        return float(brentq(f, lo, hi, xtol=1e-300, rtol=8.9e-16, maxiter=400))
+    except RuntimeError:  # no convergence: the phase is noise at this scale of frequency
+        raise MarginsUnsupported(_OUT_OF_RANGE) from None
 
 
 def _piece_hits(resp: _Resp, piece: _Piece, base: float, tail_from: float) -> Iterator[_Hit]:
@@ -889,6 +936,11 @@ def _sensitivity_exact(resp: _Resp, kappa: Fraction) -> tuple[float, float, list
     a = resp.d2
     b = resp.d2 + resp.p * (2 * k) + resp.n2 * k**2
     notes: list[str] = []
+    if b.is_zero:
+        # 1 + L ≡ 0 (say L = -1): no closed loop exists, so the sensitivity is infinite at
+        # every frequency.
+        notes.append("1 + L(s) is identically zero: the loop is ill-posed at this gain")
+        return math.inf, 0.0, notes
     on_axis = _nonneg_roots_x(b, include_zero=True)
     if on_axis:
         notes.append(
@@ -1032,6 +1084,7 @@ def _beyond(resp: _Resp, kap: float, ell: float) -> float:
     return max(marks) * 1.01
 
 
+@_in_double_precision
 def margins_at(loop: LoopAlgebra, k: Fraction | None) -> Margins:
     """Gain, phase and delay margins, crossovers and sensitivity peak at gain k (None: nominal)."""
     fx = _fixed(loop, k)
@@ -1208,6 +1261,14 @@ def stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
     plane root cancelled between blocks makes every gain unstable. Without dead time (T = 0)
     the same count applies and gives a numeric cross-check of the exact Routh set.
     """
+    try:
+        return _stable_gains_delayed(loop)
+    except MarginsUnsupported as exc:
+        return DelayedStability(None, str(exc), ())
+
+
+@_in_double_precision
+def _stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
     form = _factor_form(loop)
     if isinstance(form, str):
         return DelayedStability(None, form, ())
@@ -1245,6 +1306,7 @@ def stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
     return DelayedStability(stable.intersect(allowed), None, tuple(notes))
 
 
+@_in_double_precision
 def stable_at_delayed(loop: LoopAlgebra, k: Fraction | None) -> bool:
     """Closed-loop stability with dead time at gain k (None: nominal), by the Nyquist criterion.
 
@@ -1312,7 +1374,9 @@ def _pm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
 
 
 def _gm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
-    spread = 10.0 ** (abs(minimum) / 20.0)
+    # Beyond 6000 dB the spread leaves double precision; every finite gain margin falls short
+    # there, which `holds` decides exactly, so the candidates only need to stay finite.
+    spread = 10.0 ** min(abs(minimum) / 20.0, 300.0)
     floor = 1.0 / (spread * top) if math.isfinite(top) else 0.0
     pcs = _phase_crossovers(resp, floor)
     if pcs is None:
@@ -1467,6 +1531,7 @@ def _as_fraction(x: Fraction | float | int) -> Fraction:
     return x if isinstance(x, Fraction) else Fraction(x)
 
 
+@_in_double_precision
 def margin_gains(
     loop: LoopAlgebra,
     min_gain_margin_db: Fraction | float | None = None,

@@ -393,29 +393,19 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
     p = characteristic(loop)
     depends = p.degree(K) > 0
     if loop.delay:
-        return StableSet(
-            gains=GainSet.empty(),
-            nominal_stable=None,
-            nominal_table=None,
-            depends_on_gain=depends,
-            unsupported=(
-                f"dead time of {format_number(exact(loop.delay))} s: the closed loop has no "
-                "characteristic polynomial; its stability needs the Nyquist criterion"
-            ),
+        return _unsupported(
+            depends,
+            f"dead time of {format_number(exact(loop.delay))} s: the closed loop has no "
+            "characteristic polynomial; its stability needs the Nyquist criterion",
         )
     if p.is_zero:
         return _nowhere_stable(depends, "1 + L(s) = 0 for every s: the loop is ill-posed")
     degree = p.degree(S)
     if degree > MAX_DEGREE:
-        return StableSet(
-            gains=GainSet.empty(),
-            nominal_stable=None,
-            nominal_table=None,
-            depends_on_gain=depends,
-            unsupported=(
-                f"characteristic polynomial of degree {degree} in s: beyond the exact "
-                f"analysis (at most {MAX_DEGREE})"
-            ),
+        return _unsupported(
+            depends,
+            f"characteristic polynomial of degree {degree} in s: beyond the exact "
+            f"analysis (at most {MAX_DEGREE})",
         )
     blocks = (loop.controller, loop.plant, loop.feedback)
     dens = product(*(Ratio(b.den, sympy.Poly(1, S, K, domain=sympy.QQ)) for b in blocks)).num
@@ -475,6 +465,17 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         first_column=column_exprs,
         ends=ends_set,
         columns=tuple(columns),
+    )
+
+
+def _unsupported(depends: bool, why: str) -> StableSet:
+    """No set computed; `why` says so. The empty set must not be read as "unstable"."""
+    return StableSet(
+        gains=GainSet.empty(),
+        nominal_stable=None,
+        nominal_table=None,
+        depends_on_gain=depends,
+        unsupported=why,
     )
 
 

@@ -36,12 +36,26 @@ SHORT_CAUTION = (
     "IEC 61800-5-2, IEC 61508 or ISO 13849-1, nor qualified review."
 )
 
-_UNSAFE = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+# Controls (ESC would drive the terminal, CR rewrite the line, LF start a line of its own that
+# a CI log reader takes for ours), Unicode line separators, bidirectional overrides and a
+# stray byte-order mark. The load stage refuses them in specs; this is the last line of
+# defence for anything else that reaches the console (paths, cached messages).
+_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069\ufeff]")
+
+
+def _escape(char: str) -> str:
+    code = ord(char)
+    return f"\\x{code:02x}" if code <= 0xFF else f"\\u{code:04x}"
 
 
 def safe(text: str) -> str:
-    """User text with control characters shown as escapes (ESC would drive the terminal)."""
-    return _UNSAFE.sub(lambda m: f"\\x{ord(m.group()):02x}", text)
+    """User text with control characters shown as escapes, so it stays on its line, inert."""
+    return _UNSAFE.sub(lambda m: _escape(m.group()), text)
+
+
+def plural(n: int, word: str) -> str:
+    """'1 file', '2 files'."""
+    return f"{n} {word}" if n == 1 else f"{n} {word}s"
 
 
 def number(x: float | None, unit: str = "") -> str:
@@ -236,7 +250,11 @@ def _criterion(c: CriterionResult) -> Text:
     label = c.detail.get("label") or c.kind.replace("_", " ")
     mark = "✓" if c.met else ("✗" if c.met is False else "·")
     style = "green" if c.met else ("red" if c.met is False else "dim")
-    text = Text(mark, style=style) + Text(f" {safe(label)}: achieved {number(c.achieved)}")
+    achieved = number(c.achieved)
+    exact = c.detail.get("achieved_exact")
+    if exact and exact not in (achieved, "∞") and len(exact) <= 24:
+        achieved = f"{safe(exact)} ≈ {achieved}"
+    text = Text(mark, style=style) + Text(f" {safe(label)}: achieved {achieved}")
     if "admissible_text" in c.detail:
         text.append(f"; holds, stably, for {safe(c.detail['admissible_text'])}", style="dim")
     return text
@@ -246,11 +264,7 @@ def _summary(console: Console, result: RunResult) -> None:
     s = summary(result)
     statuses: Counter[str] = Counter(s["statuses"])
     status_text = ", ".join(f"{n} {word}" for word, n in statuses.items()) or "no verdicts"
-    console.print(
-        Text(
-            f"{s['files']} files, {s['loops']} loops, {s['requirements']} requirements "
-            f"({status_text}); {s['errors']} errors, {s['warnings']} warnings, {s['notes']} notes",
-            style="bold",
-        )
-    )
+    counts = ", ".join(plural(s[key], key[:-1]) for key in ("files", "loops", "requirements"))
+    severities = ", ".join(plural(s[key], key[:-1]) for key in ("errors", "warnings", "notes"))
+    console.print(Text(f"{counts} ({status_text}); {severities}", style="bold"))
     console.print(Text(SHORT_CAUTION, style="dim"))

@@ -39,8 +39,9 @@ TABLE_ROWS = 300
 SARIF_HINT = "speclint check --format sarif --output speclint.sarif"
 
 # Control characters other than CR and LF (which the escaping handles) carry no meaning in
-# an annotation and could confuse the log viewer.
-_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
+# an annotation and could confuse the log viewer; so do Unicode line separators (a line
+# break to some viewers) and bidirectional overrides.
+_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
 
 
 def escape_data(text: str) -> str:

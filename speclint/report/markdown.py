@@ -42,7 +42,7 @@ COLUMNS = (
     "review",
 )
 # Detail keys the analysis adds for other reports; the matrix has its own columns for them.
-_ANALYSIS_ONLY = frozenset({"label", "admissible_text", "limit"})
+_ANALYSIS_ONLY = frozenset({"label", "admissible_text", "limit", "achieved_exact"})
 _LABELS = {
     "gain_margin_db": "gain margin",
     "phase_margin_deg": "phase margin",
