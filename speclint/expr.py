@@ -37,8 +37,10 @@ from dataclasses import dataclass
 from fractions import Fraction
 
 import sympy
+from sympy.polys.polyclasses import DMP
+from sympy.polys.rings import PolyElement, ring
 
-from speclint.analysis.algebra import GENS, K, Ratio, S, poly
+from speclint.analysis.algebra import GENS, Ratio
 
 MAX_LENGTH = 2000
 MAX_NODES = 500
@@ -164,10 +166,23 @@ def _parse(text: str, gain_symbol: str | None, constants: Mapping[str, Fraction]
         raise _Refused(ExprError("syntax", 0, "not a transfer-function expression")) from None
     _check_tree(tree.body, back)
     reader = _Reader(source, back, gain_symbol, constants)
-    result = reader.read(tree.body)
-    if result.num.is_zero:
+    num, den = reader.read(tree.body)
+    if not num:
         raise _Refused(ExprError("zero", 0, "the block is identically 0"))
-    return result
+    return Ratio(_to_poly(num), _to_poly(den))
+
+
+# The reader works in sympy's sparse polynomial ring Q[s, k] and builds the two Poly of a
+# block once at the end: a Poly per intermediate costs ten times the arithmetic itself.
+_RING, _S, _K = ring(GENS, sympy.QQ)
+_ONE = _RING.one
+_GEN_NAMES = ("s", None)  # None: the gain, shown under the spec's own name
+
+_Pair = tuple[PolyElement, PolyElement]  # numerator, denominator as written
+
+
+def _to_poly(p: PolyElement) -> sympy.Poly:
+    return sympy.Poly.new(DMP.from_dict(dict(p), len(GENS) - 1, sympy.QQ), *GENS)
 
 
 def _syntax_error(err: SyntaxError, source: str, back: list[int]) -> ExprError:
@@ -258,14 +273,14 @@ class _Reader:
         self.back = back
         self.gain_symbol = gain_symbol
         self.constants = constants
-        self.handlers: dict[type[ast.AST], Callable[[ast.AST], Ratio]] = {
+        self.handlers: dict[type[ast.AST], Callable[[ast.AST], _Pair]] = {
             ast.BinOp: self._binop,
             ast.UnaryOp: self._unary,
             ast.Constant: self._constant,
             ast.Name: self._name,
         }
 
-    def read(self, node: ast.AST) -> Ratio:
+    def read(self, node: ast.AST) -> _Pair:
         handler = self.handlers.get(type(node))
         if handler is None:
             raise self._disallowed(node)
@@ -302,7 +317,7 @@ class _Reader:
 
     # -- handlers
 
-    def _binop(self, node: ast.AST) -> Ratio:
+    def _binop(self, node: ast.AST) -> _Pair:
         assert isinstance(node, ast.BinOp)
         op = type(node.op)
         if op is ast.Pow:
@@ -312,44 +327,46 @@ class _Reader:
             at = self._after(node.left, " )")
             message = f"operator '{symbol}' is not allowed; use only {_GRAMMAR}"
             raise _Refused(ExprError("syntax", at, message))
-        left = self.read(node.left)
-        right = self.read(node.right)
+        left_num, left_den = self.read(node.left)
+        right_num, right_den = self.read(node.right)
         if op is ast.Mult:
-            return self._checked(node, (left.num, right.num), (left.den, right.den))
+            return self._checked(node, (left_num, right_num), (left_den, right_den))
         if op is ast.Div:
-            if right.num.is_zero:
+            if not right_num:
                 message = "division by zero: the divisor is identically 0"
                 raise self._refuse("division-by-zero", node.right, message)
-            return self._checked(node, (left.num, right.den), (left.den, right.num))
-        sign = 1 if op is ast.Add else -1
+            return self._checked(node, (left_num, right_den), (left_den, right_num))
         self._check_sizes(
-            node, [(left.num, right.den), (right.num, left.den), (left.den, right.den)]
+            node, [(left_num, right_den), (right_num, left_den), (left_den, right_den)]
         )
-        num = left.num * right.den + right.num * left.den * sign
-        return self._verified(node, Ratio(num, left.den * right.den))
+        if op is ast.Add:
+            num = left_num * right_den + right_num * left_den
+        else:
+            num = left_num * right_den - right_num * left_den
+        return self._verified(node, (num, left_den * right_den))
 
-    def _power(self, node: ast.BinOp) -> Ratio:
+    def _power(self, node: ast.BinOp) -> _Pair:
         exponent = self._exponent(node.right)
         base = self.read(node.left)
         if exponent == 0:
-            return Ratio.one()
-        for p in (base.num, base.den):
-            degrees = [p.degree(gen) for gen in GENS]
-            if any(d * exponent > MAX_DEGREE for d in degrees):
+            return _ONE, _ONE
+        for p in base:
+            # The zero polynomial has degree -oo: its powers never exceed the cap.
+            if p and any(d * exponent > MAX_DEGREE for d in _degrees(p)):
                 message = f"the power has degree above {MAX_DEGREE}"
                 raise self._refuse("limit", node, message)
             if _bits(p) * exponent > MAX_COEFF_BITS:
                 raise self._refuse("limit", node, _TOO_BIG)
-        return self._verified(node, Ratio(base.num**exponent, base.den**exponent))
+        return self._verified(node, (base[0] ** exponent, base[1] ** exponent))
 
     def _exponent(self, node: ast.expr) -> int:
-        value = self.read(node)
-        if value.num.total_degree() > 0 or value.den.total_degree() > 0:
+        num, den = self.read(node)
+        if not num.is_ground or not den.is_ground:
             message = (
                 "the exponent must be a constant whole number, not an expression in s or the gain"
             )
             raise self._refuse("not-rational", node, message)
-        number = _as_fraction(value.num) / _as_fraction(value.den)
+        number = _as_fraction(num) / _as_fraction(den)
         if number < 0:
             message = "negative exponent: write 1/s^2 rather than s^-2"
             raise self._refuse("not-rational", node, message)
@@ -360,17 +377,17 @@ class _Reader:
             raise self._refuse("limit", node, f"exponent above {MAX_EXPONENT}")
         return int(number)
 
-    def _unary(self, node: ast.AST) -> Ratio:
+    def _unary(self, node: ast.AST) -> _Pair:
         assert isinstance(node, ast.UnaryOp)
         if isinstance(node.op, ast.USub):
-            operand = self.read(node.operand)
-            return Ratio(-operand.num, operand.den)
+            num, den = self.read(node.operand)
+            return -num, den
         if isinstance(node.op, ast.UAdd):
             return self.read(node.operand)
         word = "'not'" if isinstance(node.op, ast.Not) else "'~'"
         raise self._refuse("syntax", node, f"{word} is not allowed; use only {_GRAMMAR}")
 
-    def _constant(self, node: ast.AST) -> Ratio:
+    def _constant(self, node: ast.AST) -> _Pair:
         assert isinstance(node, ast.Constant)
         value = node.value
         if isinstance(value, bool) or value is None:
@@ -385,7 +402,7 @@ class _Reader:
             raise self._disallowed(node)
         end = node.end_col_offset if node.end_col_offset is not None else len(self.source)
         number = self._number(node, self.source[node.col_offset : end])
-        return self._verified(node, Ratio(_constant_poly(number), poly(1)))
+        return self._verified(node, (_constant_poly(number), _ONE))
 
     def _number(self, node: ast.AST, literal: str) -> Fraction:
         match = _NUMBER.fullmatch(literal)
@@ -403,17 +420,17 @@ class _Reader:
         power = int(exp) - len(frac)
         return Fraction(mantissa * 10**power) if power >= 0 else Fraction(mantissa, 10**-power)
 
-    def _name(self, node: ast.AST) -> Ratio:
+    def _name(self, node: ast.AST) -> _Pair:
         assert isinstance(node, ast.Name)
         name = node.id
         # Precedence when a spec reuses a name: s, then the gain, then the constants.
         if name == "s":
-            return Ratio(poly(S), poly(1))
+            return _S, _ONE
         if name == self.gain_symbol:
-            return Ratio(poly(K), poly(1))
+            return _K, _ONE
         if name in self.constants:
             value = Fraction(self.constants[name])
-            return Ratio(_constant_poly(value), poly(1))
+            return _constant_poly(value), _ONE
         raise self._unknown(node, name)
 
     def _unknown(self, node: ast.AST, name: str) -> _Refused:
@@ -429,32 +446,30 @@ class _Reader:
 
     # -- size guards
 
-    def _check_sizes(self, node: ast.AST, pairs: list[tuple[sympy.Poly, sympy.Poly]]) -> None:
+    def _check_sizes(self, node: ast.AST, pairs: list[_Pair]) -> None:
         for a, b in pairs:
-            for gen in GENS:
-                if a.degree(gen) + b.degree(gen) > MAX_DEGREE:
-                    name = "s" if gen == S else (self.gain_symbol or "the gain")
-                    message = f"the result has degree above {MAX_DEGREE} in {name}"
-                    raise self._refuse("limit", node, message)
+            # A zero factor (degree -oo) makes a zero product, of no degree at all.
+            if a and b:
+                for name, da, db in zip(_GEN_NAMES, _degrees(a), _degrees(b), strict=True):
+                    if da + db > MAX_DEGREE:
+                        shown = name or self.gain_symbol or "the gain"
+                        message = f"the result has degree above {MAX_DEGREE} in {shown}"
+                        raise self._refuse("limit", node, message)
             if _bits(a) + _bits(b) > MAX_COEFF_BITS:
                 raise self._refuse("limit", node, _TOO_BIG)
 
-    def _checked(
-        self,
-        node: ast.AST,
-        nums: tuple[sympy.Poly, sympy.Poly],
-        dens: tuple[sympy.Poly, sympy.Poly],
-    ) -> Ratio:
+    def _checked(self, node: ast.AST, nums: _Pair, dens: _Pair) -> _Pair:
         self._check_sizes(node, [nums, dens])
-        return self._verified(node, Ratio(nums[0] * nums[1], dens[0] * dens[1]))
+        return self._verified(node, (nums[0] * nums[1], dens[0] * dens[1]))
 
-    def _verified(self, node: ast.AST, result: Ratio) -> Ratio:
-        for p in (result.num, result.den):
+    def _verified(self, node: ast.AST, result: _Pair) -> _Pair:
+        for p in result:
             if _bits(p) > MAX_COEFF_BITS:
                 raise self._refuse("limit", node, _TOO_BIG)
-            for c in p.coeffs():
-                size = abs(sympy.Rational(c))
-                if size and not _SMALLEST <= size <= _LARGEST:
+            for c in p.values():
+                # |n/d| within [10^-M, 10^M], in integers: d <= |n|·10^M and |n| <= d·10^M.
+                size, scale = abs(c.numerator), c.denominator
+                if not (scale <= size * _LARGEST and size <= scale * _LARGEST):
                     raise self._refuse("limit", node, _OUT_OF_RANGE)
         return result
 
@@ -464,24 +479,28 @@ _OUT_OF_RANGE = (
     f"a coefficient here leaves the range 1e-{MAX_MAGNITUDE} to 1e{MAX_MAGNITUDE}; "
     "rescale the model (its units)"
 )
-_LARGEST = sympy.Integer(10) ** MAX_MAGNITUDE
-_SMALLEST = 1 / _LARGEST
+_LARGEST = 10**MAX_MAGNITUDE
 
 
-def _constant_poly(value: Fraction) -> sympy.Poly:
-    return poly(sympy.Rational(value.numerator, value.denominator))
+def _constant_poly(value: Fraction) -> PolyElement:
+    return _RING.ground_new(sympy.QQ(value.numerator, value.denominator))
 
 
-def _as_fraction(p: sympy.Poly) -> Fraction:
-    value = p.LC() if not p.is_zero else 0
-    rational = sympy.Rational(value)
-    return Fraction(int(rational.p), int(rational.q))
+def _as_fraction(p: PolyElement) -> Fraction:
+    """The value of a constant polynomial."""
+    value = p.LC
+    return Fraction(int(value.numerator), int(value.denominator))
 
 
-def _bits(p: sympy.Poly) -> int:
-    """The largest numerator or denominator size among the coefficients, in bits."""
-    largest = 0
-    for c in p.coeffs():
-        rational = sympy.Rational(c)
-        largest = max(largest, int(rational.p).bit_length(), int(rational.q).bit_length())
-    return largest
+def _degrees(p: PolyElement) -> tuple[int, ...]:
+    """Degrees of a non-zero polynomial in s and in the gain."""
+    return tuple(max(column) for column in zip(*p.keys(), strict=True))
+
+
+def _bits(p: PolyElement) -> int:
+    """The largest numerator or denominator size among the coefficients, in bits.
+
+    The zero polynomial counts as 1 bit (its coefficient 0 = 0/1), like any constant 1.
+    """
+    # bit_length(|n| | d) is the larger of the two sizes, and d >= 1 keeps it at least 1.
+    return int(max((abs(c.numerator) | c.denominator for c in p.values()), default=1).bit_length())
