@@ -37,10 +37,9 @@ from dataclasses import dataclass
 from fractions import Fraction
 
 import sympy
-from sympy.polys.polyclasses import DMP
 from sympy.polys.rings import PolyElement, ring
 
-from speclint.analysis.algebra import GENS, Ratio
+from speclint.analysis.algebra import GENS, Ratio, from_terms
 
 MAX_LENGTH = 2000
 MAX_NODES = 500
@@ -141,7 +140,17 @@ def parse_block(
 
 def common_factor(block: Ratio) -> sympy.Poly | None:
     """The exact non-constant common factor of a block's numerator and denominator, if any."""
-    factor = block.num.gcd(block.den)
+    num, den = block.num, block.den
+    if any(p.is_ground and not p.is_zero for p in (num, den)):
+        return None  # a non-zero constant shares no factor; most lags are written 1/(...)
+    for single, other in ((den, num), (num, den)):
+        if single.is_monomial and not single.is_zero and not other.is_zero:
+            # gcd(c·s^a·k^b, q) = s^min(a, i)·k^min(b, j), i and j the lowest powers of s and
+            # k in q (monic, as Poly.gcd gives it over QQ): no gcd needed for K*(s + a)/s.
+            (powers,) = single.monoms()
+            lowest = tuple(min(e, *(m[i] for m in other.monoms())) for i, e in enumerate(powers))
+            return from_terms({lowest: sympy.QQ(1)}) if any(lowest) else None
+    factor = num.gcd(den)
     if factor.is_zero or factor.total_degree() == 0:
         return None
     return factor
@@ -182,7 +191,7 @@ _Pair = tuple[PolyElement, PolyElement]  # numerator, denominator as written
 
 
 def _to_poly(p: PolyElement) -> sympy.Poly:
-    return sympy.Poly.new(DMP.from_dict(dict(p), len(GENS) - 1, sympy.QQ), *GENS)
+    return from_terms(dict(p))
 
 
 def _syntax_error(err: SyntaxError, source: str, back: list[int]) -> ExprError:

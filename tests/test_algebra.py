@@ -8,6 +8,8 @@ import control
 import numpy as np
 import pytest
 import sympy
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from speclint.analysis.algebra import (
     K,
@@ -132,3 +134,42 @@ def test_properness_at_a_gain() -> None:
     b = block("s^2/(K*s^2 + s + 1)")
     assert is_proper(b)
     assert not is_proper(b, Fraction(0))
+
+
+def test_ge_improper_at_one_gain_only() -> None:
+    # Worked by hand: L = K, H = (0.5 s + 3)/(s + 1) give
+    # 1 + L(H − 1) = ((1 − K/2)s + 1 + 2K)/(s + 1); at K = 2 the s term vanishes and
+    # Ge = 2(s + 1)/5 has a zero and no pole.
+    loop = make_loop("K", "1", "(0.5*s + 3)/(s + 1)")
+    assert improper_parts(loop, Fraction(2)) == ("equivalent forward path",)
+    assert improper_parts(loop, Fraction(1)) == ()
+    assert improper_parts(loop) == ()
+
+
+_coefficient = st.fractions(min_value=-20, max_value=20, max_denominator=12)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.dictionaries(st.tuples(st.integers(0, 4), st.integers(0, 4)), _coefficient, max_size=6),
+    st.fractions(min_value=-10, max_value=10, max_denominator=9),
+)
+def test_at_gain_matches_sympy_substitution(
+    terms: dict[tuple[int, int], Fraction], gain: Fraction
+) -> None:
+    # Reference: sympy's subs on the polynomial's expression, read back as a Poly in s.
+    expr = sum(
+        (sympy.Rational(c.numerator, c.denominator) * S**i * K**j for (i, j), c in terms.items()),
+        sympy.Integer(0),
+    )
+    fixed = at_gain(poly(expr), gain)
+    expected = expr.subs(K, sympy.Rational(gain.numerator, gain.denominator))
+    assert fixed == sympy.Poly(expected, S, domain=sympy.QQ)
+    assert fixed.gens == (S,) and fixed.domain == sympy.QQ
+
+
+@pytest.mark.parametrize("value", [0, 1, -3, 10**40])
+def test_poly_of_a_whole_number(value: int) -> None:
+    # Reference: sympy's Poly constructor on the same integer.
+    assert poly(value) == sympy.Poly(sympy.Integer(value), S, K, domain=sympy.QQ)
+    assert poly(value).is_zero == (value == 0)

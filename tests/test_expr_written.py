@@ -17,7 +17,7 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from speclint.analysis.algebra import GENS, K, Ratio, S
-from speclint.expr import MAX_DEGREE, ExprError, parse_block
+from speclint.expr import MAX_DEGREE, ExprError, common_factor, parse_block
 
 CONSTANTS = {"kt": Fraction(9, 10), "tau": Fraction(1, 250)}
 
@@ -145,3 +145,49 @@ def test_zero_factor_has_no_degree() -> None:
     result = parse_block("(0*s)*(s^20*s^20) + 1", "K", CONSTANTS)
     assert isinstance(result, Ratio)
     assert result.num == _poly(1)
+
+
+_TERMS = st.dictionaries(
+    st.tuples(st.integers(0, 3), st.integers(0, 2)),
+    st.fractions(min_value=-9, max_value=9, max_denominator=5).filter(bool),
+    min_size=1,
+    max_size=4,
+)
+
+
+@settings(max_examples=80, deadline=None)
+@given(_TERMS, st.tuples(st.integers(0, 3), st.integers(0, 2)), st.booleans())
+def test_common_factor_with_a_single_term(
+    terms: dict[tuple[int, int], Fraction], powers: tuple[int, int], single_below: bool
+) -> None:
+    # Reference: sympy's Poly.gcd over QQ (monic), on a block with a one-term side.
+    many = sympy.Poly.from_dict(
+        {m: sympy.Rational(c.numerator, c.denominator) for m, c in terms.items()},
+        *GENS,
+        domain=sympy.QQ,
+    )
+    single = sympy.Poly.from_dict({powers: sympy.Rational(-3, 7)}, *GENS, domain=sympy.QQ)
+    block = Ratio(many, single) if single_below else Ratio(single, many)
+    expected = many.gcd(single)
+    found = common_factor(block)
+    if expected.total_degree() == 0:
+        assert found is None
+    else:
+        assert found == expected
+
+
+@pytest.mark.parametrize(
+    ("text", "factor"),
+    [
+        # Worked by hand (common practice): the lowest powers shared with the single term.
+        ("K*(s + 12)/s", None),
+        ("K*s*(s + 1)/s^2", S),
+        ("(K*s^2 + K^2*s)/(K*s^3)", K * S),
+        ("s^2/(s^2 + 1)", None),
+    ],
+)
+def test_common_factor_examples(text: str, factor: sympy.Expr | None) -> None:
+    block = parse_block(text, "K", CONSTANTS)
+    assert isinstance(block, Ratio)
+    found = common_factor(block)
+    assert found == (None if factor is None else _poly(factor))

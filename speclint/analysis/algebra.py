@@ -13,10 +13,13 @@ tunable gain simply has polynomials that do not involve ``K``.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Mapping
+from dataclasses import dataclass, replace
 from fractions import Fraction
+from typing import Any
 
 import sympy
+from sympy.polys.polyclasses import DMP
 
 from speclint.analysis.gainset import GainSet
 
@@ -27,7 +30,21 @@ GENS = (S, K)
 
 def poly(expr: sympy.Expr | int) -> sympy.Poly:
     """A polynomial in (S, K) over the rationals, built from trusted internal expressions."""
+    if type(expr) is int:
+        # A whole number needs none of the expression machinery of the Poly constructor.
+        return from_terms({(0, 0): sympy.QQ(expr)} if expr else {})
     return sympy.Poly(expr, *GENS, domain=sympy.QQ)
+
+
+def from_terms(
+    terms: Mapping[tuple[int, ...], Any], gens: tuple[sympy.Symbol, ...] = GENS
+) -> sympy.Poly:
+    """The Poly over QQ in ``gens`` with {exponents: non-zero QQ coefficient} ``terms``.
+
+    Built straight from sympy's low-level representation: constructing a Poly from an
+    expression costs tens of microseconds of option handling and conversion, this a few.
+    """
+    return sympy.Poly.new(DMP.from_dict(dict(terms), len(gens) - 1, sympy.QQ), *gens)
 
 
 @dataclass(frozen=True, slots=True)
@@ -39,7 +56,10 @@ class Ratio:
 
     @staticmethod
     def one() -> Ratio:
-        return Ratio(poly(1), poly(1))
+        return Ratio(_ONE, _ONE)
+
+
+_ONE = poly(1)  # a Poly is immutable, so one instance serves every block
 
 
 @dataclass(frozen=True, slots=True)
@@ -61,8 +81,10 @@ class LoopAlgebra:
 
 def product(*blocks: Ratio) -> Ratio:
     """Series connection; numerators and denominators multiply, nothing cancels."""
-    num, den = poly(1), poly(1)
-    for block in blocks:
+    if not blocks:
+        return Ratio.one()
+    num, den = blocks[0].num, blocks[0].den
+    for block in blocks[1:]:
         num, den = num * block.num, den * block.den
     return Ratio(num, den)
 
@@ -89,13 +111,23 @@ def characteristic(loop: LoopAlgebra) -> sympy.Poly:
 
 def at_gain(p: sympy.Poly, k: Fraction) -> sympy.Poly:
     """p with the gain fixed at k, as a polynomial in S alone over the rationals."""
-    value = sympy.Rational(k.numerator, k.denominator)
     if p.is_zero:
-        return sympy.Poly(0, S, domain=sympy.QQ)
-    # Poly.eval substitutes in the polynomial's own representation; going through an
-    # expression and subs gave the same polynomial at twenty times the cost.
-    fixed = p.eval(K, value)
-    return sympy.Poly(fixed.as_expr(), S, domain=sympy.QQ) if fixed.gens != (S,) else fixed
+        return from_terms({}, (S,))
+    if p.gens != GENS or p.domain != sympy.QQ:
+        # Poly.eval substitutes in the polynomial's own representation; going through an
+        # expression and subs gave the same polynomial at twenty times the cost.
+        fixed = p.eval(K, sympy.Rational(k.numerator, k.denominator))
+        return sympy.Poly(fixed.as_expr(), S, domain=sympy.QQ) if fixed.gens != (S,) else fixed
+    # The usual case, summed term by term over the exact coefficients: Poly.eval builds
+    # several Poly and domain objects on the way and costs about five times as much.
+    value = sympy.QQ(k.numerator, k.denominator)
+    powers = [sympy.QQ(1)]
+    fixed_terms: dict[tuple[int, ...], Any] = {}
+    for (i, j), c in p.as_dict(native=True).items():
+        while len(powers) <= j:
+            powers.append(powers[-1] * value)
+        fixed_terms[(i,)] = fixed_terms.get((i,), 0) + c * powers[j]
+    return from_terms({m: c for m, c in fixed_terms.items() if c}, (S,))
 
 
 def degree_in_s(p: sympy.Poly) -> int:
@@ -128,6 +160,15 @@ def improper_parts(loop: LoopAlgebra, gain: Fraction | None = None) -> tuple[str
     that gain; without, those of a generic gain (a leading coefficient vanishing only at an
     isolated gain is not seen then).
     """
+    if gain is not None:
+        # Fixing the gain commutes with + and ·, so the blocks are fixed first and the loop
+        # and Ge built in s alone: the same degrees for a fraction of the work.
+        loop = replace(
+            loop,
+            controller=_at_gain_block(loop.controller, gain),
+            plant=_at_gain_block(loop.plant, gain),
+            feedback=_at_gain_block(loop.feedback, gain),
+        )
     parts = {
         "controller": loop.controller,
         "plant": loop.plant,
@@ -135,7 +176,11 @@ def improper_parts(loop: LoopAlgebra, gain: Fraction | None = None) -> tuple[str
         "loop": loop_transfer(loop),
         "equivalent forward path": unity_equivalent(loop),
     }
-    return tuple(name for name, block in parts.items() if relative_degree(block, gain) < 0)
+    return tuple(name for name, block in parts.items() if relative_degree(block) < 0)
+
+
+def _at_gain_block(block: Ratio, k: Fraction) -> Ratio:
+    return Ratio(at_gain(block.num, k), at_gain(block.den, k))
 
 
 def unity_equivalent(loop: LoopAlgebra) -> Ratio:
