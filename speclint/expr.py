@@ -265,7 +265,8 @@ def _check_tree(root: ast.expr, back: list[int]) -> None:
             if depth > MAX_TREE_DEPTH:
                 message = f"expression nested more than {MAX_TREE_DEPTH} operators deep"
                 raise _Refused(ExprError("limit", at, message))
-        stack.extend((child, depth + 1) for child in ast.iter_child_nodes(node))
+        for child in ast.iter_child_nodes(node):
+            stack.append((child, depth + 1))
 
 
 class _Reader:
@@ -348,11 +349,9 @@ class _Reader:
         self._check_sizes(
             node, [(left_num, right_den), (right_num, left_den), (left_den, right_den)]
         )
-        if op is ast.Add:
-            num = left_num * right_den + right_num * left_den
-        else:
-            num = left_num * right_den - right_num * left_den
-        return self._verified(node, (num, left_den * right_den))
+        first, second = _times(left_num, right_den), _times(right_num, left_den)
+        num = first + second if op is ast.Add else first - second
+        return self._verified(node, (num, _times(left_den, right_den)))
 
     def _power(self, node: ast.BinOp) -> _Pair:
         exponent = self._exponent(node.right)
@@ -469,7 +468,7 @@ class _Reader:
 
     def _checked(self, node: ast.AST, nums: _Pair, dens: _Pair) -> _Pair:
         self._check_sizes(node, [nums, dens])
-        return self._verified(node, (nums[0] * nums[1], dens[0] * dens[1]))
+        return self._verified(node, (_times(*nums), _times(*dens)))
 
     def _verified(self, node: ast.AST, result: _Pair) -> _Pair:
         for p in result:
@@ -501,9 +500,18 @@ def _as_fraction(p: PolyElement) -> Fraction:
     return Fraction(int(value.numerator), int(value.denominator))
 
 
+def _times(a: PolyElement, b: PolyElement) -> PolyElement:
+    # Most factors of a written block are a leaf's denominator 1: skip those products.
+    if a is _ONE:
+        return b
+    if b is _ONE:
+        return a
+    return a * b
+
+
 def _degrees(p: PolyElement) -> tuple[int, ...]:
     """Degrees of a non-zero polynomial in s and in the gain."""
-    return tuple(max(column) for column in zip(*p.keys(), strict=True))
+    return tuple(map(max, zip(*p.keys(), strict=True)))
 
 
 def _bits(p: PolyElement) -> int:
@@ -512,4 +520,7 @@ def _bits(p: PolyElement) -> int:
     The zero polynomial counts as 1 bit (its coefficient 0 = 0/1), like any constant 1.
     """
     # bit_length(|n| | d) is the larger of the two sizes, and d >= 1 keeps it at least 1.
-    return int(max((abs(c.numerator) | c.denominator for c in p.values()), default=1).bit_length())
+    largest = 1
+    for c in p.values():
+        largest = max(largest, abs(c.numerator) | c.denominator)
+    return int(largest.bit_length())
