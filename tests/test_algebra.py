@@ -8,7 +8,7 @@ import control
 import numpy as np
 import pytest
 import sympy
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from speclint.analysis.algebra import (
@@ -173,3 +173,45 @@ def test_poly_of_a_whole_number(value: int) -> None:
     # Reference: sympy's Poly constructor on the same integer.
     assert poly(value) == sympy.Poly(sympy.Integer(value), S, K, domain=sympy.QQ)
     assert poly(value).is_zero == (value == 0)
+
+
+_small_poly = st.lists(
+    st.tuples(
+        st.sampled_from([-2, -1, 1, 2, sympy.Rational(1, 2)]), st.integers(0, 2), st.integers(0, 1)
+    ),
+    min_size=1,
+    max_size=3,
+).map(lambda terms: sum((c * S**i * K**j for c, i, j in terms), sympy.Integer(0)))
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.lists(st.tuples(_small_poly, _small_poly), min_size=3, max_size=3),
+    st.one_of(st.none(), st.sampled_from([Fraction(0), Fraction(1), Fraction(-2), Fraction(1, 2)])),
+)
+def test_improper_parts_match_expanded_degrees(
+    pairs: list[tuple[sympy.Expr, sympy.Expr]], gain: Fraction | None
+) -> None:
+    # Reference: sympy expand on each part written out as an expression, then its degree in
+    # s (the gain substituted first); Ge's denominator Dc·Dg·Dh + Nc·Ng·(Nh − Dh) is where
+    # leading terms can cancel.
+    assume(all(n != 0 and d != 0 for n, d in pairs))
+    (nc, dc), (ng, dg), (nh, dh) = pairs
+    written = {
+        "controller": (nc, dc),
+        "plant": (ng, dg),
+        "feedback": (nh, dh),
+        "loop": (nc * ng * nh, dc * dg * dh),
+        "equivalent forward path": (nc * ng * dh, dc * dg * dh + nc * ng * (nh - dh)),
+    }
+
+    def degree(expr: sympy.Expr) -> int:
+        if gain is not None:
+            expr = expr.subs(K, sympy.Rational(gain.numerator, gain.denominator))
+        expanded = sympy.expand(expr)
+        return -1 if expanded == 0 else int(sympy.degree(expanded, S))
+
+    expected = tuple(name for name, (n, d) in written.items() if degree(d) < degree(n))
+    blocks = [Ratio(poly(n), poly(d)) for n, d in pairs]
+    loop = LoopAlgebra(*blocks, None, gain, GainSet.positive(), "K")
+    assert improper_parts(loop, gain) == expected

@@ -161,22 +161,40 @@ def improper_parts(loop: LoopAlgebra, gain: Fraction | None = None) -> tuple[str
     isolated gain is not seen then).
     """
     if gain is not None:
-        # Fixing the gain commutes with + and ·, so the blocks are fixed first and the loop
-        # and Ge built in s alone: the same degrees for a fraction of the work.
+        # Fixing the gain commutes with + and ·, so the blocks are fixed first and the rest
+        # worked out in s alone.
         loop = replace(
             loop,
             controller=_at_gain_block(loop.controller, gain),
             plant=_at_gain_block(loop.plant, gain),
             feedback=_at_gain_block(loop.feedback, gain),
         )
-    parts = {
-        "controller": loop.controller,
-        "plant": loop.plant,
-        "feedback": loop.feedback,
-        "loop": loop_transfer(loop),
-        "equivalent forward path": unity_equivalent(loop),
+    c, g, h = loop.controller, loop.plant, loop.feedback
+    nc, ng, nh = degree_in_s(c.num), degree_in_s(g.num), degree_in_s(h.num)
+    dc, dg, dh = degree_in_s(c.den), degree_in_s(g.den), degree_in_s(h.den)
+    # Degrees add under products (the coefficients in s, polynomials in k or numbers, have
+    # no zero divisors), so the loop and Ge need no multiplication; only Ge's denominator,
+    # Dc·Dg·Dh + Nc·Ng·(Nh − Dh), is built when its two terms tie in degree and the
+    # leading terms may cancel.
+    plain, feedback_part = _degree_of_product(dc, dg, dh), _degree_of_product(nc, ng)
+    feedback_part = _degree_of_product(feedback_part, degree_in_s(h.num - h.den))
+    if plain != feedback_part:
+        ge_den = max(plain, feedback_part)
+    else:
+        ge_den = degree_in_s(unity_equivalent(loop).den)
+    degrees = {
+        "controller": (nc, dc),
+        "plant": (ng, dg),
+        "feedback": (nh, dh),
+        "loop": (_degree_of_product(nc, ng, nh), plain),
+        "equivalent forward path": (_degree_of_product(nc, ng, dh), ge_den),
     }
-    return tuple(name for name, block in parts.items() if relative_degree(block) < 0)
+    return tuple(name for name, (num, den) in degrees.items() if den - num < 0)
+
+
+def _degree_of_product(*degrees: int) -> int:
+    """The degree of a product from its factors' degrees; -1 (the zero polynomial) wins."""
+    return -1 if min(degrees) < 0 else sum(degrees)
 
 
 def _at_gain_block(block: Ratio, k: Fraction) -> Ratio:
