@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from fractions import Fraction
 
+import pytest
 import sympy
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -115,3 +116,47 @@ def test_products_of_known_roots(roots: list[Fraction], multiplicity: list[int])
         * (x**2 + x + 1)
     )
     assert realroots.positive_roots(_ints(expr)) == sorted(set(roots))
+
+
+def _damped_pair(w: sympy.Rational, zeta: sympy.Rational) -> sympy.Expr:
+    # x² - 2ζw·x + w²: roots w(ζ ± j√(1 - ζ²)), right of the axis (common practice).
+    return x**2 - 2 * zeta * w * x + w**2
+
+
+def test_complex_roots_right_of_the_axis_between_real_ones() -> None:
+    # Lightly damped pairs at 1e-3, 1 and 1e5 among real roots over ten decades: Descartes'
+    # count of every gap stays positive until the pairs are cut off. Reference: sympy's
+    # exact Sturm count, and the real roots known by construction.
+    expr = sympy.expand(
+        _damped_pair(sympy.Rational(1, 1000), sympy.Rational(1, 100))
+        * _damped_pair(sympy.Integer(1), sympy.Rational(1, 50))
+        * _damped_pair(sympy.Integer(10**5), sympy.Rational(3, 10))
+        * (x - sympy.Rational(1, 10**5))
+        * (x - sympy.Rational(7, 2))
+        * (x - 3 * 10**4)
+        * (x + 2)
+    )
+    found = _check_against_sympy(expr, include_zero=False)
+    assert found == [Fraction(1, 10**5), Fraction(7, 2), Fraction(3 * 10**4)]
+
+
+def test_search_is_complete_when_numpy_misleads(monkeypatch: pytest.MonkeyPatch) -> None:
+    # numpy only guides: with its roots moved off by a factor of 3 (real ones made complex)
+    # the exact search must still find every root. Reference: sympy's Sturm count.
+    true_roots = realroots._approx_roots
+
+    def misled(p: list[int]) -> list[complex]:
+        return [complex(3.0 * z.real, 0.5 * z.real + z.imag) for z in true_roots(p)]
+
+    monkeypatch.setattr(realroots, "_approx_roots", misled)
+    expr = sympy.expand(
+        _damped_pair(sympy.Integer(2), sympy.Rational(1, 20))
+        * (x - sympy.Rational(1, 7))
+        * (x - 5)
+        * (x - 40)
+    )
+    assert _check_against_sympy(expr, include_zero=False) == [
+        Fraction(1, 7),
+        Fraction(5),
+        Fraction(40),
+    ]

@@ -9,8 +9,10 @@ time constants, squared), roots spread over many decades. Here floating point on
 2. each suggestion is bracketed by two dyadic rationals where the exact sign of p differs;
 3. Descartes' rule of signs, applied exactly to p mapped onto an interval by a Möbius
    transformation, proves that a bracket holds exactly one root and a gap between brackets
-   none (Vincent-Collins-Akritas; an interval whose count is undecided is bisected, so the
-   search stays complete whatever numpy returned);
+   none (Vincent-Collins-Akritas). The gaps are first cut at the real parts of numpy's
+   complex roots, which would otherwise keep a gap's count positive through many
+   bisections; an interval whose count is still undecided is bisected, so the search stays
+   complete whatever numpy returned;
 4. each root is refined by Newton steps in exact rational arithmetic (rounded to dyadic
    rationals) and accepted only once an exact sign change brackets it within 1e-20 of its
    size; a step that does not converge falls back to bisection.
@@ -98,8 +100,8 @@ def _variations_on(p: Sequence[int], lo: Fraction, hi: Fraction | None) -> int:
     return sign_variations(_taylor_shift(on_unit[::-1], 1))
 
 
-def _guesses(p: Sequence[int]) -> list[float]:
-    """Approximate positive real roots from numpy (a guide only; may miss or invent)."""
+def _approx_roots(p: Sequence[int]) -> list[complex]:
+    """Every root of p by numpy's companion matrix (a guide only; may be far off)."""
     import numpy as np
 
     top = max(abs(c).bit_length() for c in p)
@@ -113,11 +115,36 @@ def _guesses(p: Sequence[int]) -> list[float]:
         found = np.roots(np.array(floats, dtype=np.float64))
     except (np.linalg.LinAlgError, ValueError):
         return []
+    return [complex(z) for z in found]
+
+
+def _guesses(roots: Sequence[complex]) -> list[float]:
+    """Approximate positive real roots among numpy's (a guide only; may miss or invent)."""
     out = []
-    for z in found:
-        re, im = float(z.real), float(z.imag)
+    for z in roots:
+        re, im = z.real, z.imag
         if re > 0.0 and math.isfinite(re) and abs(im) <= 1e-3 * re:
             out.append(re)
+    return sorted(out)
+
+
+def _splits(roots: Sequence[complex], found: Sequence[tuple[Fraction, Fraction]]) -> list[Fraction]:
+    """Points between the brackets at the real parts of the other roots right of the axis.
+
+    An interval (a, b) of the positive axis whose Descartes count is positive but holds no
+    real root owes it to roots in the disc with diameter [a, b] (and (a, ∞) to roots with
+    real part above a): cutting at each such root's real part puts it on the edge of both
+    pieces' discs, so their counts drop to 0 at once instead of after many bisections.
+    """
+    out: set[Fraction] = set()
+    for z in roots:
+        if not (z.real > 0.0 and math.isfinite(z.real)):
+            continue
+        # A short dyadic number: any point near the real part serves.
+        mantissa, exponent = math.frexp(z.real)
+        x = Fraction(round(mantissa * 2**24)) * Fraction(2) ** (exponent - 24)
+        if not any(lo <= x <= hi for lo, hi in found):
+            out.add(x)
     return sorted(out)
 
 
@@ -140,8 +167,9 @@ def isolate_positive(p: Sequence[int]) -> list[tuple[Fraction, Fraction]] | None
     p = list(p)
     if len(p) < 2 or sign_variations(p) == 0:
         return []
+    roots = _approx_roots(p)
     found: list[tuple[Fraction, Fraction]] = []
-    for r in _guesses(p):
+    for r in _guesses(roots):
         br = _bracket(p, r)
         if br is not None and (not found or br[0] > found[-1][1]):
             found.append(br)
@@ -150,12 +178,16 @@ def isolate_positive(p: Sequence[int]) -> list[tuple[Fraction, Fraction]] | None
         # exactly one each, none elsewhere.
         return found
     # Prove each piece, or bisect it until it is proven (a complete search on its own).
+    result: list[tuple[Fraction, Fraction]] = []
+    cuts = _splits(roots, found)
+    for x in cuts:
+        if value_sign(p, x) == 0:
+            result.append((x, x))
     edges: list[Fraction | None] = [Fraction(0)]
-    for bracket in found:
-        edges += bracket
+    for a, b in sorted(found + [(x, x) for x in cuts]):
+        edges += [a] if a == b else [a, b]
     edges.append(None)  # ∞
     pending = [(edges[i], edges[i + 1]) for i in range(len(edges) - 1)]
-    result: list[tuple[Fraction, Fraction]] = []
     nodes = 0
     while pending:
         lo, hi = pending.pop()
@@ -232,19 +264,25 @@ def _exact_or_middle(p: Sequence[int], lo: Fraction, hi: Fraction) -> Fraction:
 def _simplest_between(lo: Fraction, hi: Fraction) -> Fraction:
     """The rational with the smallest denominator in [lo, hi], 0 < lo ≤ hi (Stern-Brocot,
     by the continued fraction both ends share; a loop, not recursion: the fraction can
-    be thousands of terms long)."""
+    be thousands of terms long). Plain integers throughout: a Fraction per step would
+    reduce by a gcd each time, and the convergents come out in lowest terms anyway."""
+    a, b = lo.numerator, lo.denominator  # lo = a/b, hi = c/d, not kept reduced
+    c, d = hi.numerator, hi.denominator
     parts: list[int] = []
     while True:
-        floor = lo.numerator // lo.denominator
-        if floor == lo or floor + 1 <= hi:
-            value = Fraction(floor if floor == lo else floor + 1)
+        floor, rest = divmod(a, b)
+        if rest == 0:
+            num, den = floor, 1
+            break
+        if (floor + 1) * d <= c:
+            num, den = floor + 1, 1
             break
         # lo and hi share the integer part: go on with the reciprocals of the remainders.
         parts.append(floor)
-        lo, hi = 1 / (hi - floor), 1 / (lo - floor)
+        a, b, c, d = d, c - floor * d, b, rest
     for floor in reversed(parts):
-        value = floor + 1 / value
-    return value
+        num, den = floor * num + den, num
+    return Fraction(num, den)
 
 
 def _dyadic_below(x: Fraction, centre: Fraction) -> Fraction:
