@@ -77,6 +77,7 @@ import numpy as np
 import numpy.typing as npt
 import sympy
 from scipy.optimize import brentq
+from sympy.external.pythonmpq import PythonMPQ
 
 from speclint.analysis import realroots
 from speclint.analysis.algebra import K, LoopAlgebra, S, at_gain, loop_transfer
@@ -194,23 +195,40 @@ def _root_value(p: sympy.Poly, a: sympy.Rational, b: sympy.Rational) -> sympy.Ra
 
 def _ints(p: sympy.Poly) -> list[int]:
     """p's coefficients (rational, highest power first) scaled to coprime integers."""
-    return realroots.integer_coefficients(
-        [Fraction(int(c.numerator), int(c.denominator)) for c in p.rep.to_list()]
-    )
+    return realroots.integer_coefficients([_fraction(c) for c in p.rep.to_list()])
 
 
 def _rational(x: Fraction) -> sympy.Rational:
     return sympy.Rational(x.numerator, x.denominator)
 
 
-def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[sympy.Rational]:
+def _fraction(x: sympy.Rational | PythonMPQ) -> Fraction:
+    return Fraction(int(x.numerator), int(x.denominator))
+
+
+def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[Fraction]:
     """Distinct real roots x ≥ 0 (x > 0 unless `include_zero`) of p, sorted, each as a
     rational within 1e-20 (relative) of the root."""
     if p.is_zero or p.degree() <= 0:
         return []
     fast = realroots.positive_roots(_ints(p), include_zero)
     if fast is not None:
-        return [_rational(x) for x in fast]
+        return fast
+    return _slow_nonneg_roots(p, include_zero)
+
+
+def _roots_x(p: Sequence[int], *, include_zero: bool) -> list[Fraction]:
+    """The same for an integer polynomial (highest power first, no leading zero)."""
+    if len(p) <= 1:
+        return []
+    fast = realroots.positive_roots(p, include_zero)
+    if fast is not None:
+        return fast
+    return _slow_nonneg_roots(sympy.Poly(list(p), X, domain=sympy.QQ), include_zero)
+
+
+def _slow_nonneg_roots(p: sympy.Poly, include_zero: bool) -> list[Fraction]:
+    """_nonneg_roots_x by sympy's own isolation, where the fast search gave up."""
     out: list[sympy.Rational] = []
     for (a, b), _mult in p.intervals():
         if a == b == 0:
@@ -221,7 +239,108 @@ def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[sympy.Rational
         if b <= 0 or (a < 0 and p.eval(0) != 0 and _root_value(p, a, b) < 0):
             continue
         out.append(_root_value(p, a, b))
-    return sorted(set(out))
+    return [_fraction(x) for x in sorted(set(out))]
+
+
+# Integer polynomials for the work done once per sample gain (a gain set is decided at many):
+# the same exact values and roots as sympy's rational polynomials, at a fraction of the cost
+# of building and combining ``Poly`` objects for every sample.
+
+
+@dataclass(frozen=True, slots=True)
+class _IntPoly:
+    """scale·(coeffs[0]·x^n + ... + coeffs[n]): coprime integers, highest power first, the
+    first non-zero (an empty tuple: the zero polynomial), and a non-zero rational scale."""
+
+    coeffs: tuple[int, ...]
+    scale: Fraction
+
+    @property
+    def degree(self) -> int:
+        return len(self.coeffs) - 1  # -1: the zero polynomial
+
+    def at(self, x: Fraction) -> Fraction:
+        """The exact value at x."""
+        if not self.coeffs:
+            return Fraction(0)
+        num, den = x.numerator, x.denominator
+        acc, power = self.coeffs[0], 1
+        for c in self.coeffs[1:]:
+            power *= den
+            acc = acc * num + c * power
+        return self.scale * Fraction(acc, power)
+
+    def lead(self) -> Fraction:
+        return self.scale * self.coeffs[0]
+
+
+def _int_poly(p: sympy.Poly) -> _IntPoly:
+    coeffs = [_fraction(c) for c in p.rep.to_list()]
+    if not coeffs:
+        return _IntPoly((), Fraction(1))
+    ints = realroots.integer_coefficients(coeffs)
+    return _IntPoly(tuple(ints), coeffs[0] / ints[0])
+
+
+def _primitive(coeffs: Sequence[int], den: int = 1) -> _IntPoly:
+    """(coeffs/den) as an _IntPoly: leading zeros dropped, the content taken out."""
+    start = 0
+    while start < len(coeffs) and coeffs[start] == 0:
+        start += 1
+    ints = list(coeffs[start:])
+    g = 0
+    for c in ints:
+        g = math.gcd(g, c)
+    if g == 0:
+        return _IntPoly((), Fraction(1))
+    return _IntPoly(tuple(c // g for c in ints), Fraction(g, den))
+
+
+def _combine(*terms: tuple[Fraction, _IntPoly]) -> _IntPoly:
+    """Σ c·p, exactly."""
+    factors = [c * p.scale for c, p in terms]
+    den = 1
+    for f in factors:
+        den = den * f.denominator // math.gcd(den, f.denominator)
+    size = max(len(p.coeffs) for _c, p in terms)
+    acc = [0] * size
+    for f, (_c, p) in zip(factors, terms, strict=True):
+        m = f.numerator * (den // f.denominator)
+        offset = size - len(p.coeffs)
+        for i, c in enumerate(p.coeffs):
+            acc[offset + i] += m * c
+    return _primitive(acc, den)
+
+
+def _int_mul(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    if not a or not b:
+        return []
+    out = [0] * (len(a) + len(b) - 1)
+    for i, x in enumerate(a):
+        if x:
+            for j, y in enumerate(b):
+                out[i + j] += x * y
+    return out
+
+
+def _int_diff(a: Sequence[int]) -> list[int]:
+    n = len(a) - 1
+    return [c * (n - i) for i, c in enumerate(a[:-1])]
+
+
+def _int_sub(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    size = max(len(a), len(b))
+    out = [0] * (size - len(a)) + list(a)
+    for i, c in enumerate(b):
+        out[size - len(b) + i] -= c
+    return out
+
+
+def _wronskian_roots(a: _IntPoly, b: _IntPoly) -> list[Fraction]:
+    """Roots x > 0 of a'·b - a·b' (where a/b is stationary), as _nonneg_roots_x."""
+    ca, cb = a.coeffs, b.coeffs
+    m = _int_sub(_int_mul(_int_diff(ca), cb), _int_mul(ca, _int_diff(cb)))
+    return _roots_x(_primitive(m).coeffs, include_zero=False)
 
 
 def _strip_common(q: sympy.Poly, p: sympy.Poly) -> sympy.Poly:
@@ -233,15 +352,15 @@ def _strip_common(q: sympy.Poly, p: sympy.Poly) -> sympy.Poly:
         q = sympy.quo(q, g)
 
 
-def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[sympy.Rational, int]]:
+def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[Fraction, int]]:
     """Roots x > 0 of q (as in _nonneg_roots_x) with the exact sign of p there; q and p
     share no root."""
-    out: list[tuple[sympy.Rational, int]] = []
+    out: list[tuple[Fraction, int]] = []
     if q.is_zero or q.degree() <= 0:
         return out
     fast = realroots.positive_roots_with_sign(_ints(q), _ints(p))
     if fast is not None:
-        return [(_rational(x), sign) for x, sign in fast]
+        return fast
     for (a, b), _mult in q.intervals():
         if b <= 0:
             continue
@@ -252,7 +371,7 @@ def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[sympy.Rational,
             a, b = (sympy.Rational(v) for v in q.sqf_part().refine_root(a, b, eps=(b - a) / 4))
         mid = (a + b) / 2
         sign = 1 if p.eval(mid) > 0 else -1
-        out.append((_root_value(q, a, b), sign))
+        out.append((_fraction(_root_value(q, a, b)), sign))
     return sorted(out)
 
 
@@ -405,6 +524,10 @@ class _Resp:
     d2: sympy.Poly  # |D(jω)|²
     p: sympy.Poly  # Re N(jω)·conj D(jω), in x
     q: sympy.Poly  # Im N(jω)·conj D(jω) = ω·q(ω²)
+    n2i: _IntPoly  # the same four for the work done at every sample gain
+    d2i: _IntPoly
+    pi: _IntPoly
+    qi: _IntPoly
     num_c: FloatArray
     den_c: FloatArray
     dnum_c: FloatArray
@@ -439,8 +562,7 @@ class _Resp:
             if w == wz:
                 return 0.0
         # Exact at the binary ω, then rounded once: see _phase_deg on why not polyval.
-        x = sympy.Rational(Fraction(w).numerator, Fraction(w).denominator) ** 2
-        return math.sqrt(_ratio(self.n2, self.d2, x))
+        return math.sqrt(_ratio(self.n2i, self.d2i, Fraction(w) ** 2))
 
     def psi_rough(self, w: float, side: int = 0) -> float:
         """Continuous phase from the factors; `side` picks a limit at an axis root."""
@@ -507,14 +629,22 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     num_c, den_c = _coeffs(num), _coeffs(den)
     dnum_c = _coeffs(dnum) if dnum.degree() >= 0 else np.zeros(1)
     dden_c = _coeffs(dden) if dden.degree() >= 0 else np.zeros(1)
+    n2 = _even_in_x(an**2 + bn**2)
+    d2 = _even_in_x(ad**2 + bd**2)
+    p = _even_in_x(an * ad + bn * bd)
+    q = _odd_in_x(bn * ad - an * bd)
     return _Resp(
         num=num,
         den=den,
         delay=delay,
-        n2=_even_in_x(an**2 + bn**2),
-        d2=_even_in_x(ad**2 + bd**2),
-        p=_even_in_x(an * ad + bn * bd),
-        q=_odd_in_x(bn * ad - an * bd),
+        n2=n2,
+        d2=d2,
+        p=p,
+        q=q,
+        n2i=_int_poly(n2),
+        d2i=_int_poly(d2),
+        pi=_int_poly(p),
+        qi=_int_poly(q),
         num_c=num_c,
         den_c=den_c,
         dnum_c=dnum_c,
@@ -564,8 +694,7 @@ def _stationary_psi(resp: _Resp) -> tuple[float, ...] | None:
 @lru_cache(maxsize=256)
 def _stationary_mag(resp: _Resp) -> tuple[float, ...]:
     """Frequencies ω > 0 where d|L0(jω)|/dω = 0 (roots of n2'·d2 - n2·d2' in x)."""
-    m = resp.n2.diff(X) * resp.d2 - resp.n2 * resp.d2.diff(X)
-    return tuple(math.sqrt(x) for x in _nonneg_roots_x(m, include_zero=False))
+    return tuple(math.sqrt(x) for x in _wronskian_roots(resp.n2i, resp.d2i))
 
 
 @dataclass(frozen=True, slots=True)
@@ -820,20 +949,19 @@ def _phase_deg(resp: _Resp, w: float) -> float:
     double-precision polynomial value cancels down to a few digits near a lightly damped
     pole or zero, an exact one is correctly rounded.
     """
-    wq = sympy.Rational(Fraction(w).numerator, Fraction(w).denominator)
+    wq = Fraction(w)
     x = wq * wq
-    re = resp.p.eval(x)
-    im = wq * resp.q.eval(x)
+    re = resp.pi.at(x)
+    im = wq * resp.qi.at(x)
     return math.degrees(math.atan2(float(im), float(re)) - w * resp.t)
 
 
 def _gain_crossovers(resp: _Resp, kappa: Fraction) -> tuple[float, ...] | None:
     """Frequencies with κ|L0(jω)| = 1, exact roots of κ²|N|² - |D|²; None if identically 1."""
-    k2 = sympy.Rational(kappa.numerator, kappa.denominator) ** 2
-    g = resp.n2 * k2 - resp.d2
-    if g.is_zero:
+    g = _combine((kappa * kappa, resp.n2i), (Fraction(-1), resp.d2i))
+    if not g.coeffs:
         return None
-    return tuple(math.sqrt(x) for x in _nonneg_roots_x(g, include_zero=True))
+    return tuple(math.sqrt(x) for x in _roots_x(g.coeffs, include_zero=True))
 
 
 def _phase_margins(resp: _Resp, gcs: tuple[float, ...]) -> list[float]:
@@ -885,7 +1013,7 @@ def _phase_crossovers(resp: _Resp, floor: float) -> tuple[tuple[float, float], .
         for x, sign in _roots_with_sign(q, resp.p):
             if sign < 0:
                 w = math.sqrt(x)
-                out.append((w, math.sqrt(_ratio(resp.n2, resp.d2, x))))
+                out.append((w, math.sqrt(_ratio(resp.n2i, resp.d2i, x))))
         return tuple(out)
     for hit in _hits(resp, math.pi):
         if hit.r == 0.0 or math.isinf(hit.r):
@@ -912,9 +1040,9 @@ def _negative_somewhere(p: sympy.Poly) -> bool:
     return any(float(p.eval(sympy.Rational(x))) < 0 for x in points)
 
 
-def _ratio(a: sympy.Poly, b: sympy.Poly, x: sympy.Rational) -> float:
+def _ratio(a: _IntPoly, b: _IntPoly, x: Fraction) -> float:
     # Exact: a float polyval can lose every digit next to a lightly damped root.
-    return float(a.eval(x) / b.eval(x))
+    return float(a.at(x) / b.at(x))
 
 
 def _gain_margin(
@@ -932,33 +1060,32 @@ def _gain_margin(
 
 def _sensitivity_exact(resp: _Resp, kappa: Fraction) -> tuple[float, float, list[str]]:
     """sup |1/(1 + κL0(jω))| without dead time, from exact stationary points in x = ω²."""
-    k = sympy.Rational(kappa.numerator, kappa.denominator)
-    a = resp.d2
-    b = resp.d2 + resp.p * (2 * k) + resp.n2 * k**2
+    a = resp.d2i
+    b = _combine((Fraction(1), a), (2 * kappa, resp.pi), (kappa * kappa, resp.n2i))
     notes: list[str] = []
-    if b.is_zero:
+    if not b.coeffs:
         # 1 + L ≡ 0 (say L = -1): no closed loop exists, so the sensitivity is infinite at
         # every frequency.
         notes.append("1 + L(s) is identically zero: the loop is ill-posed at this gain")
         return math.inf, 0.0, notes
-    on_axis = _nonneg_roots_x(b, include_zero=True)
+    on_axis = _roots_x(b.coeffs, include_zero=True)
     if on_axis:
         notes.append(
             "a closed-loop pole lies on the imaginary axis: the sensitivity peak is infinite"
         )
         return math.inf, math.sqrt(on_axis[0]), notes
-    stationary = _nonneg_roots_x(a.diff(X) * b - a * b.diff(X), include_zero=False)
-    best, where = float(a.eval(0) / b.eval(0)), 0.0
+    stationary = _wronskian_roots(a, b)
+    best, where = _ratio(a, b, Fraction(0)), 0.0
     for x in stationary:
         value = _ratio(a, b, x)
         if value > best:
             best, where = value, math.sqrt(x)
-    if a.degree() > b.degree():
+    if a.degree > b.degree:
         limit = math.inf
-    elif a.degree() < b.degree():
+    elif a.degree < b.degree:
         limit = 0.0
     else:
-        limit = float(sympy.Rational(a.LC()) / sympy.Rational(b.LC()))
+        limit = float(a.lead() / b.lead())
     if limit > best:
         best, where = limit, math.inf
         notes.append("the sensitivity peak is the limit as ω → ∞")
@@ -1078,8 +1205,10 @@ def _beyond(resp: _Resp, kap: float, ell: float) -> float:
     """A frequency past which κ|L0(jω)| < ell for good (inf when it never falls that low)."""
     if ell <= 0.0 or resp.c_inf * kap >= ell:
         return math.inf if resp.rel_degree > 0 and ell > 0 else 0.0
-    level = sympy.Rational(ell / kap) ** 2
-    roots = _nonneg_roots_x(resp.n2 - resp.d2 * level, include_zero=True)
+    level = Fraction(ell / kap) ** 2
+    roots = _roots_x(
+        _combine((Fraction(1), resp.n2i), (-level, resp.d2i)).coeffs, include_zero=True
+    )
     marks = [_tail_start(resp), *(math.sqrt(x) for x in roots)]
     return max(marks) * 1.01
 
