@@ -1556,33 +1556,62 @@ def _ms_candidates_exact(resp: _Resp, peak: Fraction) -> list[float]:
     only where F gains or loses a root x ≥ 0: a double root (the discriminant in x vanishes),
     a root at x = 0, or one from x = ∞ (the leading coefficient in x vanishes).
     """
-    k = sympy.Symbol("kk")
-    rho2 = sympy.Rational(peak.denominator, peak.numerator) ** 2
-    expr = (1 - rho2) * resp.d2.as_expr() + 2 * k * resp.p.as_expr() + k**2 * resp.n2.as_expr()
-    f = sympy.Poly(expr, X, k, domain=sympy.QQ)
-    polys = [sympy.Poly(f.as_expr().subs(X, 0), k, domain=sympy.QQ)]
-    lead = sympy.Poly(f.as_expr(), X).LC()
-    polys.append(sympy.Poly(lead, k, domain=sympy.QQ))
-    if f.degree(X) >= 1:
-        # Over the integers (denominators cleared: a constant factor, so the same roots)
-        # sympy's resultant is about ten times faster than over the rationals.
-        _, fz = f.clear_denoms(convert=True)
-        polys.append(sympy.Poly(fz.resultant(fz.diff(X)).as_expr(), k, domain=sympy.QQ))
+    rho2 = Fraction(peak.denominator, peak.numerator) ** 2
+    d2, p, n2 = resp.d2i, resp.pi, resp.n2i
+    # F over the integers (a positive constant factor: the same roots), as rows in x
+    # (highest power first), each a polynomial in K (highest power first).
+    factors = [n2.scale, 2 * p.scale, (1 - rho2) * d2.scale]
+    den = 1
+    for f in factors:
+        den = den * f.denominator // math.gcd(den, f.denominator)
+    scaled = [f.numerator * (den // f.denominator) for f in factors]
+    size = max(len(n2.coeffs), len(p.coeffs), len(d2.coeffs))
+
+    def padded(c: tuple[int, ...]) -> list[int]:
+        return [0] * (size - len(c)) + list(c)
+
+    rows = [
+        [m * c for m, c in zip(scaled, column, strict=True)]
+        for column in zip(padded(n2.coeffs), padded(p.coeffs), padded(d2.coeffs), strict=True)
+    ]
+    while rows and not any(rows[0]):
+        rows.pop(0)
+    polys = [rows[-1], rows[0]]  # F at x = 0; F's leading coefficient in x
+    if len(rows) > 1:
+        from sympy.polys.domains import ZZ
+        from sympy.polys.euclidtools import dmp_resultant
+
+        # The discriminant in x (up to a constant factor), as sympy's resultant over the
+        # integers computes it for Poly.resultant.
+        degree = len(rows) - 1
+        fz = [_strip(row) for row in rows]
+        fx = [_strip([(degree - i) * c for c in row]) for i, row in enumerate(rows[:-1])]
+        polys.append([int(c) for c in dmp_resultant(fz, fx, 1, ZZ)])
     out: list[float] = []
-    for p in polys:
-        if not p.is_zero and p.degree() > 0:
-            out.extend(_positive_roots(p))
+    for poly in polys:
+        coeffs = _primitive(poly).coeffs
+        if len(coeffs) > 1:
+            out.extend(_positive_roots(coeffs))
     return out
 
 
-def _positive_roots(p: sympy.Poly) -> list[float]:
-    fast = realroots.positive_roots(_ints(p))
+def _strip(coeffs: Sequence[int]) -> list[int]:
+    """Leading zeros dropped (sympy's dense form)."""
+    start = 0
+    while start < len(coeffs) and coeffs[start] == 0:
+        start += 1
+    return list(coeffs[start:])
+
+
+def _positive_roots(p: Sequence[int]) -> list[float]:
+    fast = realroots.positive_roots(p)
     if fast is not None:
         return [float(x) for x in fast]
+    poly = sympy.Poly(list(p), X, domain=sympy.QQ)
     out = []
-    for (a, b), _m in p.intervals():
+    for (a, b), _m in poly.intervals():
         if b > 0:
-            out.append(float(_root_value(p, a, b)))
+            out.append(float(_root_value(poly, a, b)))
     return out
 
 
