@@ -64,6 +64,7 @@ from __future__ import annotations
 
 import bisect
 import cmath
+import dataclasses
 import functools
 import itertools
 import math
@@ -384,7 +385,11 @@ def _closed_rhp_roots(p: sympy.Poly) -> tuple[int, int]:
     roots. What remains has neither, and its right-half-plane roots follow from the Cauchy
     index of its real and imaginary parts on the axis, by a Sturm chain (the argument
     principle in exact arithmetic; sympy's rectangle count is unreliable on the boundary).
+    Most polynomials are settled first, and much faster, by Routh's array (_routh_rhp).
     """
+    fast = _routh_rhp(p)
+    if fast is not None:
+        return fast
     rhp = axis = 0
     rest = p
     while rest.degree() > 0:
@@ -406,6 +411,35 @@ def _closed_rhp_roots(p: sympy.Poly) -> tuple[int, int]:
             turns = _cauchy_index(b, a)
         rhp += (rest.degree() - turns) // 2
     return rhp, axis
+
+
+def _routh_rhp(p: sympy.Poly) -> tuple[int, int] | None:
+    """_closed_rhp_roots by Routh's array, exactly, when p = s^k·r(s) and r's array is
+    regular (no zero in its first column). Then no root of r lies on the imaginary axis (nor
+    is the mirror of another), and the sign changes down the first column count r's roots
+    with Re > 0 (Routh-Hurwitz); the k roots at s = 0 are on the axis. None otherwise."""
+    coeffs = [_fraction(c) for c in p.rep.to_list()]
+    at_zero = 0
+    while len(coeffs) > 1 and coeffs[-1] == 0:
+        coeffs.pop()
+        at_zero += 1
+    if len(coeffs) <= 1:
+        return 0, at_zero
+    prev, cur = coeffs[0::2], coeffs[1::2]
+    column = [prev[0]]
+    while cur:
+        if cur[0] == 0:
+            return None
+        column.append(cur[0])
+        ratio = prev[0] / cur[0]
+        prev, cur = (
+            cur,
+            [
+                prev[j + 1] - ratio * cur[j + 1] if j + 1 < len(cur) else prev[j + 1]
+                for j in range(len(prev) - 1)
+            ],
+        )
+    return sum(1 for a, b in itertools.pairwise(column) if (a > 0) != (b > 0)), at_zero
 
 
 def _w_of_s(p: sympy.Poly) -> sympy.Poly:
@@ -664,8 +698,11 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     )
 
 
+@lru_cache(maxsize=64)
 def _with_delay(resp: _Resp, delay: Fraction) -> _Resp:
-    return _resp(resp.num, resp.den, delay)
+    """The same response with another dead time (only the delay's fields depend on it)."""
+    _check_range(resp.num, resp.den, delay)
+    return dataclasses.replace(resp, delay=delay, t=float(delay))
 
 
 # --------------------------------------------------------------------------------------------
