@@ -400,7 +400,9 @@ def _closed_rhp_roots(p: sympy.Poly) -> tuple[int, int]:
         rest = sympy.quo(rest, e)
         k = min(n for (n,), c in e.terms() if c != 0)
         f = _even_in_x(_w_of_s(sympy.quo(e, sympy.Poly(S**k, S, domain=sympy.QQ))))
-        negative = sum(m for (lo, hi), m in f.intervals() if hi < 0)
+        # f(0) ≠ 0, so an isolating interval ending at 0 (sympy gives (-1, 0) for a root
+        # in between) holds a negative root too.
+        negative = sum(m for (lo, hi), m in f.intervals() if hi <= 0)
         axis += k + 2 * negative
         rhp += f.degree() - negative
     if rest.degree() > 0:
