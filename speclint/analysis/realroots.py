@@ -347,8 +347,48 @@ def square_free(p: Sequence[int]) -> list[int]:
     q = list(p)
     if len(q) <= 2:
         return q
+    if _coprime_mod(q, _derivative(q)):
+        # gcd(p, p') = 1: the square-free part is p itself, made primitive and positive
+        # leading, as sympy's dup_sqf_part returns it.
+        g = 0
+        for c in q:
+            g = math.gcd(g, c)
+        g = g if q[0] > 0 else -g
+        return [c // g for c in q]
     part = dup_sqf_part([ZZ(c) for c in q], ZZ)
     return [int(c) for c in part]
+
+
+_PRIME = 2**61 - 1  # a Mersenne prime
+
+
+def _coprime_mod(p: Sequence[int], q: Sequence[int]) -> bool:
+    """True when p and q provably share no root, from their gcd modulo a prime; False when
+    they do or the test cannot tell. Were g = gcd(p, q) over the rationals of degree d ≥ 1,
+    its primitive integer form would divide p over the integers (Gauss's lemma), so its
+    leading coefficient would divide p's; a prime that does not divide p's leading
+    coefficient keeps g of degree d modulo the prime, and g divides both residues there."""
+    if not p or p[0] % _PRIME == 0:
+        return False
+    a = [c % _PRIME for c in p]
+    b = [c % _PRIME for c in q]
+    while b and b[0] == 0:
+        b.pop(0)
+    while b:
+        if len(b) == 1:
+            return True  # a non-zero constant: the residues are coprime
+        # a mod b over the integers modulo the prime.
+        inv = pow(b[0], -1, _PRIME)
+        while len(a) >= len(b):
+            factor = a[0] * inv % _PRIME
+            if factor:
+                for i in range(1, len(b)):
+                    a[i] = (a[i] - factor * b[i]) % _PRIME
+            a.pop(0)
+            while a and a[0] == 0:
+                a.pop(0)
+        a, b = b, a
+    return False  # the remainder sequence ended in a polynomial of positive degree
 
 
 def integer_coefficients(coeffs: Sequence[Fraction]) -> list[int]:
