@@ -299,16 +299,20 @@ def _primitive(coeffs: Sequence[int], den: int = 1) -> _IntPoly:
 
 def _combine(*terms: tuple[Fraction, _IntPoly]) -> _IntPoly:
     """Σ c·p, exactly."""
-    factors = [c * p.scale for c, p in terms]
+    return _linear([(c * p.scale, p.coeffs) for c, p in terms])
+
+
+def _linear(terms: Sequence[tuple[Fraction, Sequence[int]]]) -> _IntPoly:
+    """Σ c·p for integer polynomials p, exactly."""
     den = 1
-    for f in factors:
+    for f, _p in terms:
         den = den * f.denominator // math.gcd(den, f.denominator)
-    size = max(len(p.coeffs) for _c, p in terms)
+    size = max(len(p) for _f, p in terms)
     acc = [0] * size
-    for f, (_c, p) in zip(factors, terms, strict=True):
+    for f, p in terms:
         m = f.numerator * (den // f.denominator)
-        offset = size - len(p.coeffs)
-        for i, c in enumerate(p.coeffs):
+        offset = size - len(p)
+        for i, c in enumerate(p):
             acc[offset + i] += m * c
     return _primitive(acc, den)
 
@@ -469,6 +473,19 @@ def _cauchy_index(den: sympy.Poly, num: sympy.Poly) -> int:
 
 def _axis_roots(p: sympy.Poly) -> tuple[tuple[float, int], ...]:
     """Roots jω of p on the imaginary axis, as (ω, multiplicity), ω of either sign; exact."""
+    # p = s^k·r(s): when r(jω)'s real and imaginary parts are coprime (checked modulo a
+    # prime), the only axis root is s = 0, k times; else sympy's gcd decides.
+    coeffs = _ints(p)
+    k = 0
+    while len(coeffs) > 1 and coeffs[-1] == 0:
+        coeffs.pop()
+        k += 1
+    n = len(coeffs) - 1
+    re = [c * (-1) ** ((n - i) // 2) if (n - i) % 2 == 0 else 0 for i, c in enumerate(coeffs)]
+    im = [c * (-1) ** ((n - i) // 2) if (n - i) % 2 == 1 else 0 for i, c in enumerate(coeffs)]
+    re, im = _strip(re), _strip(im)
+    if n == 0 or (realroots.coprime(re, im) if len(re) >= len(im) else realroots.coprime(im, re)):
+        return ((0.0, k),) if k else ()
     a, b = _jw_parts(p)
     h = sympy.gcd(a, b)
     if h.degree() <= 0:
@@ -640,10 +657,16 @@ def _numeric_roots(p: sympy.Poly, axis: tuple[tuple[float, int], ...]) -> tuple[
     # Square-free factors first: numpy's roots of a multiple root are only ~eps^(1/m) good.
     # These roots only choose the 2π branch of the phase (an error below π/2 is harmless).
     roots: list[complex] = []
-    for factor, mult in sympy.sqf_list(p)[1]:
-        if factor.degree() > 0:
-            found = np.roots(_coeffs(factor))
-            roots.extend(complex(r) for r in found for _ in range(mult))
+    ints = _ints(p)
+    if len(ints) > 1 and realroots.coprime(ints, _int_diff(ints)):
+        # Square-free already: sympy's one factor would be p made monic.
+        monic = [float(Fraction(c, ints[0])) for c in ints]
+        roots.extend(complex(r) for r in np.roots(np.array(monic, dtype=np.float64)))
+    elif len(ints) > 1:
+        for factor, mult in sympy.sqf_list(p)[1]:
+            if factor.degree() > 0:
+                found = np.roots(_coeffs(factor))
+                roots.extend(complex(r) for r in found for _ in range(mult))
     for wr, m in axis:
         for _ in range(m):
             nearest = min(range(len(roots)), key=lambda i: abs(roots[i] - 1j * wr))
@@ -722,12 +745,23 @@ def _stationary_psi(resp: _Resp) -> tuple[float, ...] | None:
     ψ' = (P·Q' - Q·P')/(P² + Q²) - T with P + jQ = N(jω)·conj D(jω): the numerator is a
     polynomial with rational coefficients, even in ω, so its roots are isolated exactly.
     """
-    pw, qw = _w_polys(resp)
-    t = sympy.Rational(resp.delay.numerator, resp.delay.denominator)
-    m = pw * qw.diff(W) - qw * pw.diff(W) - (pw**2 + qw**2) * t
-    if m.is_zero:
+    # With P = p(x), Q = ω·q(x), x = ω²: the numerator in x is
+    # p·q + 2x·(p·q' - q·p') - T·(p² + x·q²).
+    p, q = resp.pi.coeffs, resp.qi.coeffs
+    cp, cq, t = resp.pi.scale, resp.qi.scale, resp.delay
+    pq = _int_mul(p, q)
+    cross = _int_sub(_int_mul(p, _int_diff(q)), _int_mul(q, _int_diff(p)))
+    m = _linear(
+        [
+            (cp * cq, pq),
+            (2 * cp * cq, [*cross, 0]),
+            (-t * cp * cp, _int_mul(p, p)),
+            (-t * cq * cq, [*_int_mul(q, q), 0]),
+        ]
+    )
+    if not m.coeffs:
         return None
-    return tuple(math.sqrt(x) for x in _nonneg_roots_x(_even_in_x(m), include_zero=False))
+    return tuple(math.sqrt(x) for x in _roots_x(m.coeffs, include_zero=False))
 
 
 @lru_cache(maxsize=256)
@@ -929,6 +963,10 @@ def _split_gain(loop: LoopAlgebra) -> tuple[sympy.Poly, sympy.Poly] | str:
 
 
 def _reduce(n: sympy.Poly, d: sympy.Poly) -> tuple[sympy.Poly, sympy.Poly, int]:
+    if not n.is_zero and not d.is_zero:
+        ni, di = _ints(n), _ints(d)
+        if realroots.coprime(ni, di) if len(ni) >= len(di) else realroots.coprime(di, ni):
+            return n, d, 0  # nothing cancels
     g = sympy.gcd(n, d)
     rhp, axis = _closed_rhp_roots(g)
     return sympy.quo(n, g), sympy.quo(d, g), rhp + axis

@@ -347,7 +347,7 @@ def square_free(p: Sequence[int]) -> list[int]:
     q = list(p)
     if len(q) <= 2:
         return q
-    if _coprime_mod(q, _derivative(q)):
+    if coprime(q, _derivative(q)):
         # gcd(p, p') = 1: the square-free part is p itself, made primitive and positive
         # leading, as sympy's dup_sqf_part returns it.
         g = 0
@@ -362,9 +362,11 @@ def square_free(p: Sequence[int]) -> list[int]:
 _PRIME = 2**61 - 1  # a Mersenne prime
 
 
-def _coprime_mod(p: Sequence[int], q: Sequence[int]) -> bool:
-    """True when p and q provably share no root, from their gcd modulo a prime; False when
-    they do or the test cannot tell. Were g = gcd(p, q) over the rationals of degree d ≥ 1,
+def coprime(p: Sequence[int], q: Sequence[int]) -> bool:
+    """True when p and q (integers, highest power first, p[0] ≠ 0) provably share no root,
+    from their gcd modulo a prime; False when they do or the test cannot tell.
+
+    Were g = gcd(p, q) over the rationals of degree d ≥ 1,
     its primitive integer form would divide p over the integers (Gauss's lemma), so its
     leading coefficient would divide p's; a prime that does not divide p's leading
     coefficient keeps g of degree d modulo the prime, and g divides both residues there."""
