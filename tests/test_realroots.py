@@ -160,3 +160,29 @@ def test_search_is_complete_when_numpy_misleads(monkeypatch: pytest.MonkeyPatch)
         Fraction(5),
         Fraction(40),
     ]
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.integers(min_value=-6, max_value=6), min_size=1, max_size=5),
+    st.lists(st.integers(min_value=-6, max_value=6), min_size=1, max_size=5),
+    st.integers(min_value=1, max_value=3),
+    st.sampled_from([1, 2**61 - 1]),  # the second: the prime of the modular test itself
+)
+def test_square_free_part_and_coprimality_match_sympy(
+    roots_p: list[int], roots_q: list[int], power: int, lead: int
+) -> None:
+    # Reference: sympy's exact gcd and square-free part over the rationals. The roots are
+    # small integers and ±j, so every common factor of p and q shows in a small resultant:
+    # the modular test must then decide, except where the prime divides p's leading
+    # coefficient (it must not claim coprimality it cannot prove).
+    p_expr = (lead * x - 1) * sympy.prod((x - r) ** power for r in roots_p) * (x**2 + 1)
+    q_expr = sympy.prod(x - r for r in roots_q)
+    p, q = _ints(sympy.expand(p_expr)), _ints(sympy.expand(q_expr))
+    p_poly, q_poly = sympy.Poly(p, x), sympy.Poly(q, x)
+    shares = sympy.gcd(p_poly, q_poly).degree() > 0
+    assert realroots.coprime(p, q) == (not shares and lead == 1)
+    part = sympy.Poly(realroots.square_free(p), x)
+    assert part.LC() > 0
+    assert part.primitive()[0] == 1
+    assert part.monic() == p_poly.sqf_part().monic()
