@@ -285,31 +285,51 @@ def _simplest_between(lo: Fraction, hi: Fraction) -> Fraction:
     return Fraction(num, den)
 
 
+def _grid_scale(centre: Fraction) -> int:
+    """2^k with about 80 bits below centre's leading bit (1 for a huge centre)."""
+    bits = 80 - (abs(centre.numerator).bit_length() - centre.denominator.bit_length())
+    return 1 << bits if bits >= 0 else 1
+
+
 def _dyadic_below(x: Fraction, centre: Fraction) -> Fraction:
-    bits = 80 - (abs(centre).numerator.bit_length() - abs(centre).denominator.bit_length())
-    scale = 1 << max(bits, 0) if bits >= 0 else 1
+    scale = _grid_scale(centre)
     return Fraction(math.floor(x * scale), scale)
 
 
 def _dyadic_above(x: Fraction, centre: Fraction) -> Fraction:
-    bits = 80 - (abs(centre).numerator.bit_length() - abs(centre).denominator.bit_length())
-    scale = 1 << max(bits, 0) if bits >= 0 else 1
+    scale = _grid_scale(centre)
     return Fraction(math.ceil(x * scale), scale)
 
 
 def _newton(p: Sequence[int], dp: Sequence[int], lo: Fraction, hi: Fraction) -> Fraction | None:
+    # In plain integers: x = u/v, p(x) = P/v^n and p'(x) = D/v^(n-1), so the Newton step is
+    # P/(v·D) and the next point (u·D - P)/(v·D), rounded down to the dyadic grid; the
+    # Fractions this replaces would reduce every intermediate by a gcd.
     x = (lo + hi) / 2
     for _ in range(_NEWTON_STEPS):
-        slope = _value(dp, x)
-        if slope == 0:
+        u, v = x.numerator, x.denominator
+        num, den = _homogeneous(p, u, v), v * _homogeneous(dp, u, v)
+        if den == 0:
             return None
-        step = _value(p, x) / slope
-        x = _dyadic_below(x - step, x)
+        if den < 0:
+            num, den = -num, -den
+        scale = _grid_scale(x)
+        x = Fraction((u * (den // v) - num) * scale // den, scale)
         if not lo <= x <= hi:
             return None
-        if abs(step) <= abs(x) * REL_EPS / 8:
+        # |step| ≤ |x|·REL_EPS/8 with step = num/den, in integers.
+        if abs(num) * 8 * REL_EPS.denominator * x.denominator <= abs(x.numerator) * den:
             return x
     return None
+
+
+def _homogeneous(p: Sequence[int], u: int, v: int) -> int:
+    """v^n·p(u/v), n = deg p."""
+    acc, power = p[0], 1
+    for c in p[1:]:
+        power *= v
+        acc = acc * u + c * power
+    return acc
 
 
 def positive_roots(p: Sequence[int], include_zero: bool = False) -> list[Fraction] | None:
