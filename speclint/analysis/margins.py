@@ -169,19 +169,6 @@ def _even_in_x(p: sympy.Poly) -> sympy.Poly:
     return sympy.Poly.from_dict(terms or {(0,): 0}, X, domain=sympy.QQ)
 
 
-def _odd_in_x(p: sympy.Poly) -> sympy.Poly:
-    """An odd polynomial ω·q(ω²), returned as q(x)."""
-    terms = {((n - 1) // 2,): c for (n,), c in p.terms() if c != 0}
-    assert all(n % 2 == 1 for (n,), c in p.terms() if c != 0)
-    return sympy.Poly.from_dict(terms or {(0,): 0}, X, domain=sympy.QQ)
-
-
-def _x_to_w(p: sympy.Poly) -> sympy.Poly:
-    return sympy.Poly.from_dict(
-        {(2 * n,): c for (n,), c in p.terms()} or {(0,): 0}, W, domain=sympy.QQ
-    )
-
-
 def _root_value(p: sympy.Poly, a: sympy.Rational, b: sympy.Rational) -> sympy.Rational:
     """p's root isolated in [a, b], as the midpoint of its interval narrowed to relative
     width 1e-20: a rational, so values at the root can be computed exactly from it."""
@@ -281,6 +268,43 @@ def _int_poly(p: sympy.Poly) -> _IntPoly:
         return _IntPoly((), Fraction(1))
     ints = realroots.integer_coefficients(coeffs)
     return _IntPoly(tuple(ints), coeffs[0] / ints[0])
+
+
+def _scaled(coeffs: Sequence[int], factor: Fraction) -> _IntPoly:
+    """factor·coeffs as an _IntPoly whose scale is positive (the sign kept in coeffs)."""
+    prim = _primitive(coeffs)
+    if not prim.coeffs:
+        return prim
+    if factor < 0:
+        return _IntPoly(tuple(-c for c in prim.coeffs), -factor * prim.scale)
+    return _IntPoly(prim.coeffs, factor * prim.scale)
+
+
+def _poly_x(p: _IntPoly) -> sympy.Poly:
+    """p as a sympy polynomial in x over the rationals."""
+    n = p.degree
+    terms = {
+        (n - i,): sympy.Rational(c * p.scale.numerator, p.scale.denominator)
+        for i, c in enumerate(p.coeffs)
+        if c
+    }
+    return sympy.Poly.from_dict(terms or {(0,): 0}, X, domain=sympy.QQ)
+
+
+def _jw_split(coeffs: Sequence[int]) -> tuple[list[int], list[int]]:
+    """p(jω) = A(ω) + j·B(ω) for p with integer coefficients (highest power first); A and B
+    lowest power first."""
+    re: list[int] = []
+    im: list[int] = []
+    for k, c in enumerate(reversed(coeffs)):
+        sign = 1 if k % 4 in (0, 1) else -1
+        re.append(sign * c if k % 2 == 0 else 0)
+        im.append(sign * c if k % 2 == 1 else 0)
+    return re, im
+
+
+def _plus(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    return [x + y for x, y in zip(a, b, strict=True)]
 
 
 def _primitive(coeffs: Sequence[int], den: int = 1) -> _IntPoly:
@@ -573,14 +597,10 @@ class _Resp:
     num: sympy.Poly
     den: sympy.Poly
     delay: Fraction
-    n2: sympy.Poly  # |N(jω)|² in x = ω²
-    d2: sympy.Poly  # |D(jω)|²
-    p: sympy.Poly  # Re N(jω)·conj D(jω), in x
-    q: sympy.Poly  # Im N(jω)·conj D(jω) = ω·q(ω²)
-    n2i: _IntPoly  # the same four for the work done at every sample gain
-    d2i: _IntPoly
-    pi: _IntPoly
-    qi: _IntPoly
+    n2i: _IntPoly  # |N(jω)|² in x = ω²
+    d2i: _IntPoly  # |D(jω)|²
+    pi: _IntPoly  # Re N(jω)·conj D(jω), in x
+    qi: _IntPoly  # Im N(jω)·conj D(jω) = ω·q(ω²)
     num_c: FloatArray
     den_c: FloatArray
     dnum_c: FloatArray
@@ -597,6 +617,23 @@ class _Resp:
     lead_negative: bool
     rel_degree: int  # deg D - deg N
     c_inf: float  # |L(∞)|: 0 strictly proper, inf improper
+
+    # The same four as sympy polynomials in x, for the exact work done once per loop.
+    @property
+    def n2(self) -> sympy.Poly:
+        return _poly_x(self.n2i)
+
+    @property
+    def d2(self) -> sympy.Poly:
+        return _poly_x(self.d2i)
+
+    @property
+    def p(self) -> sympy.Poly:
+        return _poly_x(self.pi)
+
+    @property
+    def q(self) -> sympy.Poly:
+        return _poly_x(self.qi)
 
     def l0(self, w: float) -> complex:
         s = 1j * w
@@ -677,8 +714,6 @@ def _numeric_roots(p: sympy.Poly, axis: tuple[tuple[float, int], ...]) -> tuple[
 @lru_cache(maxsize=256)
 def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     _check_range(num, den, delay)
-    an, bn = _jw_parts(num)
-    ad, bd = _jw_parts(den)
     axis_zeros = _axis_roots(num) if not num.is_zero else ()
     axis_poles = _axis_roots(den)
     lead = sympy.Rational(num.LC()) / sympy.Rational(den.LC()) if not num.is_zero else 0
@@ -688,22 +723,22 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     num_c, den_c = _coeffs(num), _coeffs(den)
     dnum_c = _coeffs(dnum) if dnum.degree() >= 0 else np.zeros(1)
     dden_c = _coeffs(dden) if dden.degree() >= 0 else np.zeros(1)
-    n2 = _even_in_x(an**2 + bn**2)
-    d2 = _even_in_x(ad**2 + bd**2)
-    p = _even_in_x(an * ad + bn * bd)
-    q = _odd_in_x(bn * ad - an * bd)
+    n, d = _int_poly(num), _int_poly(den)
+    an, bn = _jw_split(n.coeffs)
+    ad, bd = _jw_split(d.coeffs)
+    # Even (odd) polynomials in ω, lowest power first: every other coefficient is x's.
+    n2 = _plus(_int_mul(an, an), _int_mul(bn, bn))[::2]
+    d2 = _plus(_int_mul(ad, ad), _int_mul(bd, bd))[::2]
+    p = _plus(_int_mul(an, ad), _int_mul(bn, bd))[::2]
+    q = _plus(_int_mul(bn, ad), [-c for c in _int_mul(an, bd)])[1::2]
     return _Resp(
         num=num,
         den=den,
         delay=delay,
-        n2=n2,
-        d2=d2,
-        p=p,
-        q=q,
-        n2i=_int_poly(n2),
-        d2i=_int_poly(d2),
-        pi=_int_poly(p),
-        qi=_int_poly(q),
+        n2i=_scaled(n2[::-1], n.scale * n.scale),
+        d2i=_scaled(d2[::-1], d.scale * d.scale),
+        pi=_scaled(p[::-1], n.scale * d.scale),
+        qi=_scaled(q[::-1], n.scale * d.scale),
         num_c=num_c,
         den_c=den_c,
         dnum_c=dnum_c,
@@ -732,10 +767,6 @@ def _with_delay(resp: _Resp, delay: Fraction) -> _Resp:
 
 # --------------------------------------------------------------------------------------------
 # Monotone pieces of the phase and the points where it meets a level
-
-
-def _w_polys(resp: _Resp) -> tuple[sympy.Poly, sympy.Poly]:
-    return _x_to_w(resp.p), _x_to_w(resp.q) * sympy.Poly(W, W, domain=sympy.QQ)
 
 
 @lru_cache(maxsize=256)
@@ -926,7 +957,7 @@ def _hits(resp: _Resp, base: float) -> Iterator[_Hit]:
 
 def _real_band(resp: _Resp) -> bool:
     """L(jω) real on the whole axis (T = 0 and Im N·conj D ≡ 0) with some dynamics."""
-    return resp.delay == 0 and resp.q.is_zero and resp.den.degree() + resp.num.degree() > 0
+    return resp.delay == 0 and not resp.qi.coeffs and resp.den.degree() + resp.num.degree() > 0
 
 
 # --------------------------------------------------------------------------------------------
