@@ -1108,17 +1108,24 @@ def _phase_crossovers(resp: _Resp, floor: float) -> tuple[tuple[float, float], .
     """
     out: list[tuple[float, float]] = []
     if resp.delay == 0:
-        if resp.q.is_zero:
+        if not resp.qi.coeffs:
             # L(jω) = p(ω²)/|D|² is real everywhere: negative over a band unless p ≥ 0.
-            if resp.p.is_zero or not _negative_somewhere(resp.p):
+            if not resp.pi.coeffs or not _negative_somewhere(resp.p):
                 return ()
             return None
-        p0 = resp.p.eval(0)
-        d0 = resp.d2.eval(0)
+        zero = Fraction(0)
+        p0 = resp.pi.at(zero)
+        d0 = resp.d2i.at(zero)
         if d0 != 0 and p0 < 0:
-            out.append((0.0, math.sqrt(float(resp.n2.eval(0) / d0))))
-        q = _strip_common(resp.q, resp.p)
-        for x, sign in _roots_with_sign(q, resp.p):
+            out.append((0.0, math.sqrt(float(resp.n2i.at(zero) / d0))))
+        q, p = resp.qi.coeffs, resp.pi.coeffs
+        found = None
+        if len(q) > 1 and p and realroots.coprime(q, p):
+            # Nothing to strip: q's roots with p's sign straight from the integers.
+            found = realroots.positive_roots_with_sign(q, p)
+        if found is None:
+            found = _roots_with_sign(_strip_common(resp.q, resp.p), resp.p)
+        for x, sign in found:
             if sign < 0:
                 w = math.sqrt(x)
                 out.append((w, math.sqrt(_ratio(resp.n2i, resp.d2i, x))))
