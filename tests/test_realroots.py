@@ -167,7 +167,7 @@ def test_search_is_complete_when_numpy_misleads(monkeypatch: pytest.MonkeyPatch)
     st.lists(st.integers(min_value=-6, max_value=6), min_size=1, max_size=5),
     st.lists(st.integers(min_value=-6, max_value=6), min_size=1, max_size=5),
     st.integers(min_value=1, max_value=3),
-    st.sampled_from([1, 2**61 - 1]),  # the second: the prime of the modular test itself
+    st.sampled_from([1, 2**30 - 35]),  # the second: the prime of the modular test itself
 )
 def test_square_free_part_and_coprimality_match_sympy(
     roots_p: list[int], roots_q: list[int], power: int, lead: int

@@ -379,7 +379,7 @@ def square_free(p: Sequence[int]) -> list[int]:
     return [int(c) for c in part]
 
 
-_PRIME = 2**61 - 1  # a Mersenne prime
+_PRIME = 2**30 - 35  # the largest prime below 2^30: residues and their products stay small
 
 
 def coprime(p: Sequence[int], q: Sequence[int]) -> bool:
