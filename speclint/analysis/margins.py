@@ -40,8 +40,9 @@ is stable there is a separate question: the feasibility logic intersects these s
 stable gain set (``admissible_gains``), and so must any other caller.
 
 Accuracy. Without dead time, gain and phase crossovers and the sensitivity peak's stationary
-points are real roots of polynomials with rational coefficients, isolated exactly with sympy
-and refined to a rational within 1e-20 (relative) of the root; |L|, the phase and |S| are then
+points are real roots of polynomials with rational coefficients, isolated exactly (integer
+arithmetic in :mod:`speclint.analysis.realroots`, sympy where that search gives up) and
+refined to a rational within 1e-20 (relative) of the root; |L|, the phase and |S| are then
 evaluated exactly at that rational and rounded once, so reported frequencies and margins are
 correct to double precision (relative error below 1e-13; a float polynomial evaluation would
 lose most digits next to a lightly damped pole). With dead time, gain crossovers stay exact;
