@@ -576,11 +576,22 @@ def _coeffs(p: sympy.Poly) -> FloatArray:
     return np.array([float(c) for c in p.all_coeffs()], dtype=np.float64)
 
 
+def _float_coeffs(p: _IntPoly, derivative: bool = False) -> FloatArray:
+    """p's (or p''s) coefficients rounded to floats, highest power first; [0.0] for zero."""
+    n = p.degree
+    if derivative:
+        values = [float(p.scale * (c * (n - i))) for i, c in enumerate(p.coeffs[:-1])]
+    else:
+        values = [float(p.scale * c) for c in p.coeffs]
+    return np.array(values or [0.0], dtype=np.float64)
+
+
 def _check_range(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> None:
     """Refuse a loop whose numbers double precision cannot carry (see _FLOAT_SPAN)."""
-    sizes = [abs(sympy.Rational(c)) for p in (num, den) for c in p.coeffs() if c != 0]
+    # Fractions compare exactly with the float bounds, as sympy's Rationals do.
+    sizes = [abs(_fraction(c)) for p in (num, den) for c in p.rep.to_list() if c != 0]
     if delay:
-        sizes.append(sympy.Rational(delay.numerator, delay.denominator))
+        sizes.append(delay)
     if sizes and max(sizes) / min(sizes) > _FLOAT_SPAN:
         raise MarginsUnsupported(_OUT_OF_RANGE)
     if any(not 1 / _FLOAT_SPAN <= x <= _FLOAT_SPAN for x in sizes):
@@ -717,14 +728,12 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     _check_range(num, den, delay)
     axis_zeros = _axis_roots(num) if not num.is_zero else ()
     axis_poles = _axis_roots(den)
-    lead = sympy.Rational(num.LC()) / sympy.Rational(den.LC()) if not num.is_zero else 0
+    n, d = _int_poly(num), _int_poly(den)
+    lead = n.lead() / d.lead() if n.coeffs else Fraction(0)
     rel = den.degree() - num.degree()
     c_inf = 0.0 if rel > 0 else (math.inf if rel < 0 else abs(float(lead)))
-    dnum, dden = num.diff(S), den.diff(S)
-    num_c, den_c = _coeffs(num), _coeffs(den)
-    dnum_c = _coeffs(dnum) if dnum.degree() >= 0 else np.zeros(1)
-    dden_c = _coeffs(dden) if dden.degree() >= 0 else np.zeros(1)
-    n, d = _int_poly(num), _int_poly(den)
+    num_c, den_c = _float_coeffs(n), _float_coeffs(d)
+    dnum_c, dden_c = _float_coeffs(n, derivative=True), _float_coeffs(d, derivative=True)
     an, bn = _jw_split(n.coeffs)
     ad, bd = _jw_split(d.coeffs)
     # Even (odd) polynomials in ω, lowest power first: every other coefficient is x's.
