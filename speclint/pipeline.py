@@ -47,10 +47,16 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
     for req in found.requirements:
         if req.id not in analysed:
             result.requirements.append(_unanalysed(req, found))
-    for rid, where in found.broken_requirements:
+    for broken in found.broken_requirements:
+        where = broken.location
         result.requirements.append(
             RequirementResult(
-                rid, where.path, where.line or 0, None, "invalid", "has errors (see the findings)"
+                broken.id,
+                where.path,
+                where.line or 0,
+                broken.loop,
+                "invalid",
+                "has errors (see the findings)",
             )
         )
     checked = trace.check(specs, found, config)
