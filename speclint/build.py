@@ -14,6 +14,7 @@ from typing import Any
 from speclint.findings import Finding, Location
 from speclint.load import Document, Path
 from speclint.model import (
+    BrokenRequirement,
     Constant,
     Criterion,
     Disturbance,
@@ -48,7 +49,10 @@ def build(doc: Document) -> tuple[SpecFile, list[Finding]]:
         if not _broken(doc, ("requirements", i)):
             requirements.append(_requirement(doc, i, raw))
         elif isinstance(raw, dict) and isinstance(raw.get("id"), str):
-            broken_reqs.append((raw["id"], doc.location(("requirements", i))))
+            loop = raw.get("loop")
+            sound = isinstance(loop, str) and not _broken(doc, ("requirements", i, "loop"))
+            where = doc.location(("requirements", i))
+            broken_reqs.append(BrokenRequirement(raw["id"], where, loop if sound else None))
     spec = SpecFile(
         doc.path,
         doc,

@@ -1,4 +1,5 @@
-"""The analysis cache: one JSON file per loop, keyed by everything its verdicts depend on.
+"""The analysis cache: one JSON file per loop, keyed by everything its verdicts depend on,
+and one per spec file, keyed by its bytes, holding the file as loading and validation left it.
 
 The key hashes the loop's model and its requirements exactly as built (expressions as
 written, exact numbers, and the places findings point at, so a finding never comes back
@@ -18,11 +19,14 @@ import json
 import os
 import shutil
 import tempfile
+from collections.abc import Callable
+from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
 from speclint import __version__
 from speclint.findings import Finding, Location, Severity
+from speclint.load import Document
 from speclint.model import Loop, Requirement
 from speclint.results import CriterionResult, LoopResult, RequirementResult
 
@@ -85,24 +89,28 @@ class Cache:
             return None
         return loop, reqs, found
 
-    def get_validation(self, key: str) -> tuple[list[Finding], set[DataPath]] | None:
-        """A spec file's validation findings and flagged paths, stored under `key`."""
+    def get_file(self, key: str, shown: str, text: str) -> tuple[list[Finding], Document] | None:
+        """A spec file as loading and validation left it, with their findings, stored under
+        `key` (the file's bytes): a file that has not changed is neither parsed nor validated
+        again, which is most of a warm run."""
         try:
-            entry = self._read(key)
+            entry = self._read(key, object_hook=_revive)
             if entry is None:
                 return None
-            found = [_finding_from(f) for f in entry["validation"]]
-            flagged = {_data_path(p) for p in entry["flagged"]}
+            found = [_finding_from(f) for f in entry["findings"]]
+            doc = _document_from(entry["document"], shown, text)
         except (OSError, ValueError, KeyError, TypeError, AttributeError):
             return None
-        return found, flagged
+        return found, doc
 
-    def put_validation(self, key: str, found: list[Finding], flagged: set[DataPath]) -> None:
+    def put_file(self, key: str, found: list[Finding], doc: Document) -> None:
+        """Keep a loaded and validated file (its data: the load stage's strings, ints,
+        booleans, nulls and Fractions under string keys, all of which JSON carries)."""
         entry = {
             "format": ENTRY_FORMAT,
             "key": key,
-            "validation": [_finding_to(f) for f in found],
-            "flagged": sorted(([*p] for p in flagged), key=repr),
+            "findings": [_finding_to(f) for f in found],
+            "document": _document_to(doc),
         }
         self._write(key, entry)
 
@@ -120,7 +128,7 @@ class Cache:
 
     def _write(self, key: str, entry: dict[str, Any]) -> None:
         try:
-            body = json.dumps(entry, allow_nan=True)
+            body = json.dumps(entry, allow_nan=True, default=_fraction_to)
             text = f"{_seal(body)}\n{body}"
             path = self._path(key)
             path.parent.mkdir(parents=True, exist_ok=True)
@@ -136,15 +144,19 @@ class Cache:
                 Path(tmp).replace(path)
             finally:
                 Path(tmp).unlink(missing_ok=True)
-        except OSError:
-            return  # a read-only checkout still gets its answers, only slower
+        except (OSError, TypeError, ValueError):
+            # A read-only checkout still gets its answers, only slower; a value JSON cannot
+            # carry is not kept either.
+            return
 
-    def _read(self, key: str) -> dict[str, Any] | None:
+    def _read(
+        self, key: str, object_hook: Callable[[dict[str, Any]], Any] | None = None
+    ) -> dict[str, Any] | None:
         """The entry under `key` if this machine wrote it; None for anything else."""
         seal, _, body = self._path(key).read_text(encoding="utf-8").partition("\n")
         if not hmac.compare_digest(seal, _seal(body)):
             return None  # not written here: perhaps committed by someone, never trusted
-        entry = json.loads(body)
+        entry = json.loads(body, object_hook=object_hook)
         if not isinstance(entry, dict) or entry.get("key") != key:
             return None
         if entry.get("format") != ENTRY_FORMAT:
@@ -199,6 +211,59 @@ def _machine_secret() -> bytes:
     except OSError:
         return secret
     return secret
+
+
+# A loaded file's exact numbers in JSON: {"\x00": [numerator, denominator]}. No key of a
+# spec can be NUL (the load stage refuses control characters), so nothing else reads so.
+_FRACTION_TAG = "\x00"
+
+
+def _fraction_to(value: Any) -> Any:
+    if isinstance(value, Fraction):
+        return {_FRACTION_TAG: [value.numerator, value.denominator]}
+    raise TypeError(f"{type(value).__name__} is not kept in the cache")
+
+
+def _revive(d: dict[str, Any]) -> Any:
+    if _FRACTION_TAG in d:
+        num, den = d[_FRACTION_TAG]
+        if not isinstance(num, int) or not isinstance(den, int) or den <= 0:
+            raise TypeError("not a fraction")
+        return Fraction(num, den)
+    return d
+
+
+def _marks_to(marks: dict[DataPath, tuple[int, int]]) -> list[Any]:
+    return [[list(path), line, column] for path, (line, column) in marks.items()]
+
+
+def _marks_from(rows: Any) -> dict[DataPath, tuple[int, int]]:
+    # Sealed entries are our own writing: the shape is checked only as far as a wrong one
+    # would raise (a list inside a path is unhashable), which costs nothing per mark.
+    return {tuple(path): (line, column) for path, line, column in rows}
+
+
+def _document_to(doc: Document) -> dict[str, Any]:
+    return {
+        "data": doc.data,
+        "value_marks": _marks_to(doc.value_marks),
+        "key_marks": _marks_to(doc.key_marks),
+        "plain_text": [[list(path), text] for path, text in doc.plain_text.items()],
+        "flagged": sorted(([*p] for p in doc.flagged), key=repr),
+    }
+
+
+def _document_from(d: dict[str, Any], shown: str, text: str) -> Document:
+    plain = {tuple(path): str(written) for path, written in d["plain_text"]}
+    return Document(
+        shown,
+        text,
+        d["data"],
+        _marks_from(d["value_marks"]),
+        _marks_from(d["key_marks"]),
+        plain,
+        {_data_path(p) for p in d["flagged"]},
+    )
 
 
 def _data_path(value: Any) -> DataPath:

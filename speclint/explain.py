@@ -335,12 +335,12 @@ def _unknown(name: str, found: trace.Index, findings: list[Finding]) -> Refusal:
             usage=False,
             findings=_loop_findings(name, findings),
         )
-    for rid, where in found.broken_requirements:
-        if rid == name:
+    for broken in found.broken_requirements:
+        if broken.id == name:
             return Refusal(
                 f"requirement {name!r} has errors, so it cannot be explained",
                 usage=False,
-                findings=_findings_of_item(where, found, findings),
+                findings=_findings_of_item(broken.location, found, findings),
             )
     known = sorted({*found.loops, *(r.id for r in found.requirements)})
     close = difflib.get_close_matches(name, known, n=3, cutoff=0.6)
@@ -369,7 +369,7 @@ def _findings_of_item(
         loc.line
         for loc in (
             *(r.location for r in found.requirements),
-            *(w for _, w in found.broken_requirements),
+            *(b.location for b in found.broken_requirements),
             *(loop.location for loop in found.loops.values()),
         )
         if loc.path == where.path

@@ -87,17 +87,22 @@ def read_spec(path: str, raw: bytes) -> LoadResult:
         msg = f"file is {len(raw):,} bytes; spec files are limited to {MAX_FILE_BYTES:,} bytes"
         return LoadResult(None, [finding("SL107", msg, where)])
     try:
-        text = raw.decode("utf-8")
+        text = spec_text(raw)
     except UnicodeDecodeError as exc:
         return LoadResult(None, [_encoding_finding(path, raw, exc)])
-    if text.startswith("\ufeff"):
-        text = text[1:]  # a leading byte-order mark is legal and means nothing
     problem = _control_character(path, text)
     if problem:
         return LoadResult(None, [problem])
     if not text.strip():
         return LoadResult(None, [finding("SL104", "file is empty", where)])
     return _Composer(path, text).run()
+
+
+def spec_text(raw: bytes) -> str:
+    """The text of a spec file's bytes (UTF-8; raises UnicodeDecodeError otherwise)."""
+    text = raw.decode("utf-8")
+    # A leading byte-order mark is legal and means nothing.
+    return text[1:] if text.startswith("\ufeff") else text
 
 
 def _encoding_finding(path: str, raw: bytes, exc: UnicodeDecodeError) -> Finding:

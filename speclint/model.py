@@ -138,6 +138,16 @@ class Requirement:
 
 
 @dataclass(frozen=True, slots=True)
+class BrokenRequirement:
+    """A requirement left out because of errors already reported: its ID, its place, and
+    the loop it names when that much of it is sound (so reports can show it there)."""
+
+    id: str
+    location: Location
+    loop: str | None = None
+
+
+@dataclass(frozen=True, slots=True)
 class SpecFile:
     path: str
     document: Document = field(compare=False, hash=False, repr=False)
@@ -147,4 +157,4 @@ class SpecFile:
     # Left out because of errors already reported: loop names, and requirement IDs with
     # their places, so that nothing refers to them as if they did not exist.
     broken_loops: tuple[str, ...] = ()
-    broken_requirements: tuple[tuple[str, Location], ...] = ()
+    broken_requirements: tuple[BrokenRequirement, ...] = ()

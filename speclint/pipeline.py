@@ -21,11 +21,11 @@ from speclint.build import build, buildable
 from speclint.cache import Cache, file_key, loop_key
 from speclint.discover import Config, display_path, spec_files
 from speclint.findings import Finding, Location
-from speclint.load import MAX_FILE_BYTES, Document, read_spec
+from speclint.load import MAX_FILE_BYTES, Document, read_spec, spec_text
 from speclint.model import Loop, Requirement, SpecFile
 from speclint.results import LoopResult, RequirementResult, RunResult
 from speclint.rules import finding
-from speclint.validate import restore_strings, validate
+from speclint.validate import validate
 
 
 @dataclass(frozen=True, slots=True)
@@ -47,10 +47,16 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
     for req in found.requirements:
         if req.id not in analysed:
             result.requirements.append(_unanalysed(req, found))
-    for rid, where in found.broken_requirements:
+    for broken in found.broken_requirements:
+        where = broken.location
         result.requirements.append(
             RequirementResult(
-                rid, where.path, where.line or 0, None, "invalid", "has errors (see the findings)"
+                broken.id,
+                where.path,
+                where.line or 0,
+                broken.loop,
+                "invalid",
+                "has errors (see the findings)",
             )
         )
     checked = trace.check(specs, found, config)
@@ -95,13 +101,15 @@ def _read_one(
         )
         return None
     try:
-        loaded = read_spec(shown, raw)
-        result.findings.extend(loaded.findings)
-        doc = loaded.document
+        known = _known_file(shown, raw, cache)
+        if known is None:
+            found, doc = _load_and_validate(shown, raw, cache)
+        else:
+            found, doc = known
+        result.findings.extend(found)
         if doc is None:
             return None
         result.sources[shown] = doc.text
-        result.findings.extend(_validated(doc, shown, raw, cache))
         if not buildable(doc):
             return None
         spec, built = build(doc)
@@ -112,21 +120,30 @@ def _read_one(
         return None
 
 
-def _validated(doc: Document, shown: str, raw: bytes, cache: Cache | None) -> list[Finding]:
-    """validate(doc), or what it gave these very bytes before: a file that has not changed
-    is not validated again, so a warm run never imports jsonschema (about 50 ms)."""
-    key = file_key(shown, raw) if cache is not None else None
-    known = cache.get_validation(key) if cache is not None and key is not None else None
-    if known is not None:
-        found, flagged = known
-        restore_strings(doc)
-        doc.flagged.update(flagged)
-        return found
-    before = set(doc.flagged)
-    found = validate(doc)
-    if cache is not None and key is not None:
-        cache.put_validation(key, found, doc.flagged - before)
-    return found
+def _known_file(
+    shown: str, raw: bytes, cache: Cache | None
+) -> tuple[list[Finding], Document] | None:
+    """What loading and validating these very bytes gave before, if the cache has it."""
+    if cache is None or len(raw) > MAX_FILE_BYTES:
+        return None
+    try:
+        text = spec_text(raw)
+    except UnicodeDecodeError:
+        return None
+    return cache.get_file(file_key(shown, raw), shown, text)
+
+
+def _load_and_validate(
+    shown: str, raw: bytes, cache: Cache | None
+) -> tuple[list[Finding], Document | None]:
+    loaded = read_spec(shown, raw)
+    doc = loaded.document
+    if doc is None:
+        return loaded.findings, None
+    found = loaded.findings + validate(doc)
+    if cache is not None:
+        cache.put_file(file_key(shown, raw), found, doc)
+    return found, doc
 
 
 def internal_error(shown: str, exc: BaseException, where: Location | None = None) -> Finding:

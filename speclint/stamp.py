@@ -148,7 +148,7 @@ def _read_all(config: Config, cwd: Path) -> tuple[list[_File], list[SpecFile]]:
 
 def _plan(rid: str, files: list[_File], found: trace.Index, by: str, date: str) -> None:
     defs = [r for r in found.requirements if r.id == rid]
-    broken = [where for other, where in found.broken_requirements if other == rid]
+    broken = [b.location for b in found.broken_requirements if b.id == rid]
     places = [f"{r.location.path}:{r.location.line}" for r in defs]
     places += [f"{w.path}:{w.line}" for w in broken]
     if not places:

@@ -35,6 +35,7 @@ from speclint import fingerprint
 from speclint.discover import Config, ConfigError
 from speclint.findings import Finding, Location
 from speclint.model import (
+    BrokenRequirement,
     Criterion,
     Disturbance,
     ErrorConstants,
@@ -56,7 +57,7 @@ class Index:
     requirements: list[Requirement] = field(default_factory=list)
     # Left out by the build stage for errors already reported.
     broken_loops: set[str] = field(default_factory=set)
-    broken_requirements: list[tuple[str, Location]] = field(default_factory=list)
+    broken_requirements: list[BrokenRequirement] = field(default_factory=list)
 
 
 @dataclass(slots=True)
@@ -94,7 +95,7 @@ def check(specs: list[SpecFile], found: Index, config: Config) -> Checked:
     out.extend(_duplicate_ids(found))
     if config.id_pattern is not None:
         out.extend(_id_pattern(found, config.id_pattern))
-    known = set(first) | {rid for rid, _ in found.broken_requirements}
+    known = set(first) | {b.id for b in found.broken_requirements}
     suggest = _suggester(sorted(known))
     for req in found.requirements:
         out.extend(_links(req, known, suggest))
@@ -157,7 +158,7 @@ def _unknown_loops(found: Index) -> Iterator[Finding]:
 
 def _duplicate_ids(found: Index) -> Iterator[Finding]:
     entries = [(r.id, r.place("id")) for r in found.requirements]
-    entries.extend(found.broken_requirements)
+    entries.extend((b.id, b.location) for b in found.broken_requirements)
     entries.sort(key=lambda e: (e[1].path, e[1].line or 0, e[1].column or 0))
     seen: dict[str, Location] = {}
     for rid, where in entries:
@@ -410,7 +411,7 @@ def _node(
     loop = found.loops.get(req.loop) if req.loop is not None else None
     unit = loop.output_unit if loop is not None else None
     resolved = set(parents.get(req.id, ()))
-    known = resolved | {rid for rid, _ in found.broken_requirements}
+    known = resolved | {b.id for b in found.broken_requirements}
     return TraceNode(
         id=req.id,
         path=req.location.path,

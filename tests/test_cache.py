@@ -240,3 +240,68 @@ def test_an_entry_that_arrives_with_the_repository_cannot_change_a_verdict(demo)
             forged_entries += 1
     assert forged_entries > 0
     assert _check()[1] == fresh
+
+
+def test_an_unchanged_file_is_neither_parsed_nor_validated_again(demo, monkeypatch):
+    _, cold = _check()
+
+    def refuse(*args: object) -> object:
+        raise AssertionError("an unchanged file was read again")
+
+    monkeypatch.setattr(speclint.pipeline, "read_spec", refuse)
+    monkeypatch.setattr(speclint.pipeline, "validate", refuse)
+    assert _check()[1] == cold
+
+
+_AWKWARD = """\
+loops:
+  drive:
+    description: "quoted: 0.1, true, null"
+    plant: "2.50/(s*(0.125*s + 1))"
+    controller: K
+    gain: {symbol: K, nominal: 1.10, limits: [0.01, 1e3]}
+requirements:
+  - id: REQ-1.10
+    loop: drive
+    text: 1.10
+    criteria: {tracking: {ramp: {max_error: 0.05}}, margins: {phase_deg: 45}}
+    flag: true
+    nothing: null
+    count: 7
+    dup: 1
+    dup: 2
+"""
+
+
+def _typed(value: object) -> object:
+    """The value with every leaf's type beside it: 1, True, 1.0 and Fraction(1) differ."""
+    if isinstance(value, dict):
+        return {k: _typed(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_typed(v) for v in value]
+    return (type(value).__name__, value)
+
+
+def test_a_kept_file_comes_back_exactly_as_loading_and_validation_left_it(tmp_path):
+    # Exact numbers stay Fractions, booleans stay booleans, text where the schema wants a
+    # string stays as written; marks, source texts and flagged paths come back too.
+    from speclint.cache import Cache, file_key
+    from speclint.load import read_spec
+    from speclint.validate import validate
+
+    raw = _AWKWARD.encode()
+    loaded = read_spec("awkward.yaml", raw)
+    doc = loaded.document
+    assert doc is not None and loaded.findings  # the duplicate key
+    found = loaded.findings + validate(doc)
+    cache = Cache(tmp_path / "cache")
+    key = file_key("awkward.yaml", raw)
+    cache.put_file(key, found, doc)
+    kept = cache.get_file(key, "awkward.yaml", _AWKWARD)
+    assert kept is not None
+    kept_found, kept_doc = kept
+    assert kept_found == found
+    assert _typed(kept_doc.data) == _typed(doc.data)
+    assert kept_doc.value_marks == doc.value_marks and kept_doc.key_marks == doc.key_marks
+    assert kept_doc.plain_text == doc.plain_text and kept_doc.flagged == doc.flagged
+    assert kept_doc.text == doc.text and kept_doc.path == doc.path

@@ -158,3 +158,17 @@ def test_real_process_in_the_repository_runs_the_demo():
     report = json.loads(done.stdout)
     assert report["summary"]["files"] >= 2
     assert all(f["line"] is not None for f in report["findings"])
+
+
+def test_a_requirement_with_errors_is_shown_on_the_loop_it_names(speclint):
+    # Common practice for a review: an invalid line stays with its loop, not in a pile apart.
+    loop = 'loops:\n  drive:\n    plant: "1/(s*(s + 1))"\n    controller: K\n'
+    loop += "    gain: {symbol: K, nominal: 1}\n"
+    reqs = "requirements:\n  - id: R-1\n    loop: drive\n    verificaton: {method: test}\n"
+    reqs += "  - id: R-2\n    loop: 7\n    verification: {method: test}\n"
+    run = speclint({"a.yaml": "speclint: 1\n" + loop + reqs})
+    shown = {r["id"]: (r["loop"], r["status"]) for r in run.report["requirements"]}
+    assert shown == {"R-1": ("drive", "invalid"), "R-2": (None, "invalid")}
+    console = speclint({"a.yaml": "speclint: 1\n" + loop + reqs}, fmt="console").out
+    apart = console.split("Requirements on no analysed loop", 1)[1]
+    assert "R-2" in apart and "R-1" not in apart

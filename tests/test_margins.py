@@ -446,6 +446,46 @@ def test_open_loop_unstable_and_hidden_cancellation_are_noted() -> None:
     assert any("internally unstable" in n for n in margins_at(loop, Fraction(1)).notes)
 
 
+small_rational = st.fractions(min_value=Fraction(1, 20), max_value=50, max_denominator=20)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.tuples(small_rational, st.booleans()), max_size=4),
+    st.lists(st.tuples(small_rational, small_rational, st.sampled_from([-1, 0, 1])), max_size=2),
+    st.integers(min_value=0, max_value=2),
+)
+def test_open_loop_unstable_pole_count_matches_the_poles_built_in(
+    reals: list[tuple[Fraction, bool]],
+    pairs: list[tuple[Fraction, Fraction, int]],
+    integrators: int,
+) -> None:
+    # The denominator is built from its roots: real ones ±r, pairs a ± jb with a of either
+    # sign or zero (undamped), and integrators; its right-half-plane poles are known by
+    # construction (common practice: the roots of a product are those of its factors).
+    def q(x: Fraction) -> sympy.Rational:
+        return sympy.Rational(x.numerator, x.denominator)
+
+    den = S**integrators
+    expected = 0
+    for r, right in reals:
+        den *= S - q(r) if right else S + q(r)
+        expected += right
+    for a, b, side in pairs:
+        den *= (S - side * q(a)) ** 2 + q(b) ** 2
+        expected += 2 * (side > 0)
+    m = margins_at(make_loop(S + 3, sympy.expand(den)), Fraction(1))
+    counted = [n for n in m.notes if n.startswith("open-loop unstable")]
+    if expected == 0:
+        assert counted == []
+    else:
+        plural = "s" if expected > 1 else ""
+        assert counted == [
+            f"open-loop unstable ({expected} right-half-plane pole{plural}): margins alone do "
+            "not decide stability; see the closed-loop verdict"
+        ]
+
+
 # --------------------------------------------------------------------------------------------
 # Dead time
 
@@ -666,3 +706,17 @@ def test_margin_gains_within_limits_and_unsupported_forms() -> None:
         verdicts.append(round(z) == 0)
         assert stable_at_delayed(odd, k) == (round(z) == 0)
     assert True in verdicts and False in verdicts
+
+
+def test_slow_undamped_pole_pair_is_not_counted_as_unstable() -> None:
+    # K(s+3)/(s² + 1/400): poles ±j/20 on the imaginary axis, none with Re > 0 (common
+    # practice), so no open-loop-unstable caution; with dead time the Nyquist count must
+    # start from P = 0 as well: the stable set agrees with the brute-force count.
+    m = margins_at(make_loop(S + 3, S**2 + sympy.Rational(1, 400)), Fraction(1))
+    assert not any(n.startswith("open-loop unstable") for n in m.notes)
+    delayed = stable_gains_delayed(make_loop(S + 3, S**2 + sympy.Rational(1, 400), Fraction(1, 10)))
+    assert delayed.gains is not None
+    for k in (0.1, 1.0, 10.0, 20.0):
+        z = rhp_closed_loop_roots(S + 3, S**2 + sympy.Rational(1, 400), k, 0.1)
+        assert z == pytest.approx(round(z), abs=0.05)
+        assert delayed.gains.contains(sympy.Float(k)) == (round(z) == 0)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from fractions import Fraction
 
+import pytest
 import sympy
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -115,3 +116,73 @@ def test_products_of_known_roots(roots: list[Fraction], multiplicity: list[int])
         * (x**2 + x + 1)
     )
     assert realroots.positive_roots(_ints(expr)) == sorted(set(roots))
+
+
+def _damped_pair(w: sympy.Rational, zeta: sympy.Rational) -> sympy.Expr:
+    # x² - 2ζw·x + w²: roots w(ζ ± j√(1 - ζ²)), right of the axis (common practice).
+    return x**2 - 2 * zeta * w * x + w**2
+
+
+def test_complex_roots_right_of_the_axis_between_real_ones() -> None:
+    # Lightly damped pairs at 1e-3, 1 and 1e5 among real roots over ten decades: Descartes'
+    # count of every gap stays positive until the pairs are cut off. Reference: sympy's
+    # exact Sturm count, and the real roots known by construction.
+    expr = sympy.expand(
+        _damped_pair(sympy.Rational(1, 1000), sympy.Rational(1, 100))
+        * _damped_pair(sympy.Integer(1), sympy.Rational(1, 50))
+        * _damped_pair(sympy.Integer(10**5), sympy.Rational(3, 10))
+        * (x - sympy.Rational(1, 10**5))
+        * (x - sympy.Rational(7, 2))
+        * (x - 3 * 10**4)
+        * (x + 2)
+    )
+    found = _check_against_sympy(expr, include_zero=False)
+    assert found == [Fraction(1, 10**5), Fraction(7, 2), Fraction(3 * 10**4)]
+
+
+def test_search_is_complete_when_numpy_misleads(monkeypatch: pytest.MonkeyPatch) -> None:
+    # numpy only guides: with its roots moved off by a factor of 3 (real ones made complex)
+    # the exact search must still find every root. Reference: sympy's Sturm count.
+    true_roots = realroots._approx_roots
+
+    def misled(p: list[int]) -> list[complex]:
+        return [complex(3.0 * z.real, 0.5 * z.real + z.imag) for z in true_roots(p)]
+
+    monkeypatch.setattr(realroots, "_approx_roots", misled)
+    expr = sympy.expand(
+        _damped_pair(sympy.Integer(2), sympy.Rational(1, 20))
+        * (x - sympy.Rational(1, 7))
+        * (x - 5)
+        * (x - 40)
+    )
+    assert _check_against_sympy(expr, include_zero=False) == [
+        Fraction(1, 7),
+        Fraction(5),
+        Fraction(40),
+    ]
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.integers(min_value=-6, max_value=6), min_size=1, max_size=5),
+    st.lists(st.integers(min_value=-6, max_value=6), min_size=1, max_size=5),
+    st.integers(min_value=1, max_value=3),
+    st.sampled_from([1, 2**30 - 35]),  # the second: the prime of the modular test itself
+)
+def test_square_free_part_and_coprimality_match_sympy(
+    roots_p: list[int], roots_q: list[int], power: int, lead: int
+) -> None:
+    # Reference: sympy's exact gcd and square-free part over the rationals. The roots are
+    # small integers and ±j, so every common factor of p and q shows in a small resultant:
+    # the modular test must then decide, except where the prime divides p's leading
+    # coefficient (it must not claim coprimality it cannot prove).
+    p_expr = (lead * x - 1) * sympy.prod((x - r) ** power for r in roots_p) * (x**2 + 1)
+    q_expr = sympy.prod(x - r for r in roots_q)
+    p, q = _ints(sympy.expand(p_expr)), _ints(sympy.expand(q_expr))
+    p_poly, q_poly = sympy.Poly(p, x), sympy.Poly(q, x)
+    shares = sympy.gcd(p_poly, q_poly).degree() > 0
+    assert realroots.coprime(p, q) == (not shares and lead == 1)
+    part = sympy.Poly(realroots.square_free(p), x)
+    assert part.LC() > 0
+    assert part.primitive()[0] == 1
+    assert part.monic() == p_poly.sqf_part().monic()

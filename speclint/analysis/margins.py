@@ -40,8 +40,9 @@ is stable there is a separate question: the feasibility logic intersects these s
 stable gain set (``admissible_gains``), and so must any other caller.
 
 Accuracy. Without dead time, gain and phase crossovers and the sensitivity peak's stationary
-points are real roots of polynomials with rational coefficients, isolated exactly with sympy
-and refined to a rational within 1e-20 (relative) of the root; |L|, the phase and |S| are then
+points are real roots of polynomials with rational coefficients, isolated exactly (integer
+arithmetic in :mod:`speclint.analysis.realroots`, sympy where that search gives up) and
+refined to a rational within 1e-20 (relative) of the root; |L|, the phase and |S| are then
 evaluated exactly at that rational and rounded once, so reported frequencies and margins are
 correct to double precision (relative error below 1e-13; a float polynomial evaluation would
 lose most digits next to a lightly damped pole). With dead time, gain crossovers stay exact;
@@ -64,6 +65,7 @@ from __future__ import annotations
 
 import bisect
 import cmath
+import dataclasses
 import functools
 import itertools
 import math
@@ -77,6 +79,7 @@ import numpy as np
 import numpy.typing as npt
 import sympy
 from scipy.optimize import brentq
+from sympy.external.pythonmpq import PythonMPQ
 
 from speclint.analysis import realroots
 from speclint.analysis.algebra import K, LoopAlgebra, S, at_gain, loop_transfer
@@ -167,19 +170,6 @@ def _even_in_x(p: sympy.Poly) -> sympy.Poly:
     return sympy.Poly.from_dict(terms or {(0,): 0}, X, domain=sympy.QQ)
 
 
-def _odd_in_x(p: sympy.Poly) -> sympy.Poly:
-    """An odd polynomial ω·q(ω²), returned as q(x)."""
-    terms = {((n - 1) // 2,): c for (n,), c in p.terms() if c != 0}
-    assert all(n % 2 == 1 for (n,), c in p.terms() if c != 0)
-    return sympy.Poly.from_dict(terms or {(0,): 0}, X, domain=sympy.QQ)
-
-
-def _x_to_w(p: sympy.Poly) -> sympy.Poly:
-    return sympy.Poly.from_dict(
-        {(2 * n,): c for (n,), c in p.terms()} or {(0,): 0}, W, domain=sympy.QQ
-    )
-
-
 def _root_value(p: sympy.Poly, a: sympy.Rational, b: sympy.Rational) -> sympy.Rational:
     """p's root isolated in [a, b], as the midpoint of its interval narrowed to relative
     width 1e-20: a rational, so values at the root can be computed exactly from it."""
@@ -194,23 +184,40 @@ def _root_value(p: sympy.Poly, a: sympy.Rational, b: sympy.Rational) -> sympy.Ra
 
 def _ints(p: sympy.Poly) -> list[int]:
     """p's coefficients (rational, highest power first) scaled to coprime integers."""
-    return realroots.integer_coefficients(
-        [Fraction(int(c.numerator), int(c.denominator)) for c in p.rep.to_list()]
-    )
+    return realroots.integer_coefficients([_fraction(c) for c in p.rep.to_list()])
 
 
 def _rational(x: Fraction) -> sympy.Rational:
     return sympy.Rational(x.numerator, x.denominator)
 
 
-def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[sympy.Rational]:
+def _fraction(x: sympy.Rational | PythonMPQ) -> Fraction:
+    return Fraction(int(x.numerator), int(x.denominator))
+
+
+def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[Fraction]:
     """Distinct real roots x ≥ 0 (x > 0 unless `include_zero`) of p, sorted, each as a
     rational within 1e-20 (relative) of the root."""
     if p.is_zero or p.degree() <= 0:
         return []
     fast = realroots.positive_roots(_ints(p), include_zero)
     if fast is not None:
-        return [_rational(x) for x in fast]
+        return fast
+    return _slow_nonneg_roots(p, include_zero)
+
+
+def _roots_x(p: Sequence[int], *, include_zero: bool) -> list[Fraction]:
+    """The same for an integer polynomial (highest power first, no leading zero)."""
+    if len(p) <= 1:
+        return []
+    fast = realroots.positive_roots(p, include_zero)
+    if fast is not None:
+        return fast
+    return _slow_nonneg_roots(sympy.Poly(list(p), X, domain=sympy.QQ), include_zero)
+
+
+def _slow_nonneg_roots(p: sympy.Poly, include_zero: bool) -> list[Fraction]:
+    """_nonneg_roots_x by sympy's own isolation, where the fast search gave up."""
     out: list[sympy.Rational] = []
     for (a, b), _mult in p.intervals():
         if a == b == 0:
@@ -221,7 +228,149 @@ def _nonneg_roots_x(p: sympy.Poly, *, include_zero: bool) -> list[sympy.Rational
         if b <= 0 or (a < 0 and p.eval(0) != 0 and _root_value(p, a, b) < 0):
             continue
         out.append(_root_value(p, a, b))
-    return sorted(set(out))
+    return [_fraction(x) for x in sorted(set(out))]
+
+
+# Integer polynomials for the work done once per sample gain (a gain set is decided at many):
+# the same exact values and roots as sympy's rational polynomials, at a fraction of the cost
+# of building and combining ``Poly`` objects for every sample.
+
+
+@dataclass(frozen=True, slots=True)
+class _IntPoly:
+    """scale·(coeffs[0]·x^n + ... + coeffs[n]): coprime integers, highest power first, the
+    first non-zero (an empty tuple: the zero polynomial), and a non-zero rational scale."""
+
+    coeffs: tuple[int, ...]
+    scale: Fraction
+
+    @property
+    def degree(self) -> int:
+        return len(self.coeffs) - 1  # -1: the zero polynomial
+
+    def at(self, x: Fraction) -> Fraction:
+        """The exact value at x."""
+        if not self.coeffs:
+            return Fraction(0)
+        num, den = x.numerator, x.denominator
+        acc, power = self.coeffs[0], 1
+        for c in self.coeffs[1:]:
+            power *= den
+            acc = acc * num + c * power
+        return self.scale * Fraction(acc, power)
+
+    def lead(self) -> Fraction:
+        return self.scale * self.coeffs[0]
+
+
+def _int_poly(p: sympy.Poly) -> _IntPoly:
+    coeffs = [_fraction(c) for c in p.rep.to_list()]
+    if not coeffs:
+        return _IntPoly((), Fraction(1))
+    ints = realroots.integer_coefficients(coeffs)
+    return _IntPoly(tuple(ints), coeffs[0] / ints[0])
+
+
+def _scaled(coeffs: Sequence[int], factor: Fraction) -> _IntPoly:
+    """factor·coeffs as an _IntPoly whose scale is positive (the sign kept in coeffs)."""
+    prim = _primitive(coeffs)
+    if not prim.coeffs:
+        return prim
+    if factor < 0:
+        return _IntPoly(tuple(-c for c in prim.coeffs), -factor * prim.scale)
+    return _IntPoly(prim.coeffs, factor * prim.scale)
+
+
+def _poly_x(p: _IntPoly) -> sympy.Poly:
+    """p as a sympy polynomial in x over the rationals."""
+    n = p.degree
+    terms = {
+        (n - i,): sympy.Rational(c * p.scale.numerator, p.scale.denominator)
+        for i, c in enumerate(p.coeffs)
+        if c
+    }
+    return sympy.Poly.from_dict(terms or {(0,): 0}, X, domain=sympy.QQ)
+
+
+def _jw_split(coeffs: Sequence[int]) -> tuple[list[int], list[int]]:
+    """p(jω) = A(ω) + j·B(ω) for p with integer coefficients (highest power first); A and B
+    lowest power first."""
+    re: list[int] = []
+    im: list[int] = []
+    for k, c in enumerate(reversed(coeffs)):
+        sign = 1 if k % 4 in (0, 1) else -1
+        re.append(sign * c if k % 2 == 0 else 0)
+        im.append(sign * c if k % 2 == 1 else 0)
+    return re, im
+
+
+def _plus(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    return [x + y for x, y in zip(a, b, strict=True)]
+
+
+def _primitive(coeffs: Sequence[int], den: int = 1) -> _IntPoly:
+    """(coeffs/den) as an _IntPoly: leading zeros dropped, the content taken out."""
+    start = 0
+    while start < len(coeffs) and coeffs[start] == 0:
+        start += 1
+    ints = list(coeffs[start:])
+    g = 0
+    for c in ints:
+        g = math.gcd(g, c)
+    if g == 0:
+        return _IntPoly((), Fraction(1))
+    return _IntPoly(tuple(c // g for c in ints), Fraction(g, den))
+
+
+def _combine(*terms: tuple[Fraction, _IntPoly]) -> _IntPoly:
+    """Σ c·p, exactly."""
+    return _linear([(c * p.scale, p.coeffs) for c, p in terms])
+
+
+def _linear(terms: Sequence[tuple[Fraction, Sequence[int]]]) -> _IntPoly:
+    """Σ c·p for integer polynomials p, exactly."""
+    den = 1
+    for f, _p in terms:
+        den = den * f.denominator // math.gcd(den, f.denominator)
+    size = max(len(p) for _f, p in terms)
+    acc = [0] * size
+    for f, p in terms:
+        m = f.numerator * (den // f.denominator)
+        offset = size - len(p)
+        for i, c in enumerate(p):
+            acc[offset + i] += m * c
+    return _primitive(acc, den)
+
+
+def _int_mul(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    if not a or not b:
+        return []
+    out = [0] * (len(a) + len(b) - 1)
+    for i, x in enumerate(a):
+        if x:
+            for j, y in enumerate(b):
+                out[i + j] += x * y
+    return out
+
+
+def _int_diff(a: Sequence[int]) -> list[int]:
+    n = len(a) - 1
+    return [c * (n - i) for i, c in enumerate(a[:-1])]
+
+
+def _int_sub(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    size = max(len(a), len(b))
+    out = [0] * (size - len(a)) + list(a)
+    for i, c in enumerate(b):
+        out[size - len(b) + i] -= c
+    return out
+
+
+def _wronskian_roots(a: _IntPoly, b: _IntPoly) -> list[Fraction]:
+    """Roots x > 0 of a'·b - a·b' (where a/b is stationary), as _nonneg_roots_x."""
+    ca, cb = a.coeffs, b.coeffs
+    m = _int_sub(_int_mul(_int_diff(ca), cb), _int_mul(ca, _int_diff(cb)))
+    return _roots_x(_primitive(m).coeffs, include_zero=False)
 
 
 def _strip_common(q: sympy.Poly, p: sympy.Poly) -> sympy.Poly:
@@ -233,15 +382,15 @@ def _strip_common(q: sympy.Poly, p: sympy.Poly) -> sympy.Poly:
         q = sympy.quo(q, g)
 
 
-def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[sympy.Rational, int]]:
+def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[Fraction, int]]:
     """Roots x > 0 of q (as in _nonneg_roots_x) with the exact sign of p there; q and p
     share no root."""
-    out: list[tuple[sympy.Rational, int]] = []
+    out: list[tuple[Fraction, int]] = []
     if q.is_zero or q.degree() <= 0:
         return out
     fast = realroots.positive_roots_with_sign(_ints(q), _ints(p))
     if fast is not None:
-        return [(_rational(x), sign) for x, sign in fast]
+        return fast
     for (a, b), _mult in q.intervals():
         if b <= 0:
             continue
@@ -252,7 +401,7 @@ def _roots_with_sign(q: sympy.Poly, p: sympy.Poly) -> list[tuple[sympy.Rational,
             a, b = (sympy.Rational(v) for v in q.sqf_part().refine_root(a, b, eps=(b - a) / 4))
         mid = (a + b) / 2
         sign = 1 if p.eval(mid) > 0 else -1
-        out.append((_root_value(q, a, b), sign))
+        out.append((_fraction(_root_value(q, a, b)), sign))
     return sorted(out)
 
 
@@ -265,7 +414,11 @@ def _closed_rhp_roots(p: sympy.Poly) -> tuple[int, int]:
     roots. What remains has neither, and its right-half-plane roots follow from the Cauchy
     index of its real and imaginary parts on the axis, by a Sturm chain (the argument
     principle in exact arithmetic; sympy's rectangle count is unreliable on the boundary).
+    Most polynomials are settled first, and much faster, by Routh's array (_routh_rhp).
     """
+    fast = _routh_rhp(p)
+    if fast is not None:
+        return fast
     rhp = axis = 0
     rest = p
     while rest.degree() > 0:
@@ -276,7 +429,9 @@ def _closed_rhp_roots(p: sympy.Poly) -> tuple[int, int]:
         rest = sympy.quo(rest, e)
         k = min(n for (n,), c in e.terms() if c != 0)
         f = _even_in_x(_w_of_s(sympy.quo(e, sympy.Poly(S**k, S, domain=sympy.QQ))))
-        negative = sum(m for (lo, hi), m in f.intervals() if hi < 0)
+        # f(0) ≠ 0, so an isolating interval ending at 0 (sympy gives (-1, 0) for a root
+        # in between) holds a negative root too.
+        negative = sum(m for (lo, hi), m in f.intervals() if hi <= 0)
         axis += k + 2 * negative
         rhp += f.degree() - negative
     if rest.degree() > 0:
@@ -287,6 +442,35 @@ def _closed_rhp_roots(p: sympy.Poly) -> tuple[int, int]:
             turns = _cauchy_index(b, a)
         rhp += (rest.degree() - turns) // 2
     return rhp, axis
+
+
+def _routh_rhp(p: sympy.Poly) -> tuple[int, int] | None:
+    """_closed_rhp_roots by Routh's array, exactly, when p = s^k·r(s) and r's array is
+    regular (no zero in its first column). Then no root of r lies on the imaginary axis (nor
+    is the mirror of another), and the sign changes down the first column count r's roots
+    with Re > 0 (Routh-Hurwitz); the k roots at s = 0 are on the axis. None otherwise."""
+    coeffs = [_fraction(c) for c in p.rep.to_list()]
+    at_zero = 0
+    while len(coeffs) > 1 and coeffs[-1] == 0:
+        coeffs.pop()
+        at_zero += 1
+    if len(coeffs) <= 1:
+        return 0, at_zero
+    prev, cur = coeffs[0::2], coeffs[1::2]
+    column = [prev[0]]
+    while cur:
+        if cur[0] == 0:
+            return None
+        column.append(cur[0])
+        ratio = prev[0] / cur[0]
+        prev, cur = (
+            cur,
+            [
+                prev[j + 1] - ratio * cur[j + 1] if j + 1 < len(cur) else prev[j + 1]
+                for j in range(len(prev) - 1)
+            ],
+        )
+    return sum(1 for a, b in itertools.pairwise(column) if (a > 0) != (b > 0)), at_zero
 
 
 def _w_of_s(p: sympy.Poly) -> sympy.Poly:
@@ -314,6 +498,19 @@ def _cauchy_index(den: sympy.Poly, num: sympy.Poly) -> int:
 
 def _axis_roots(p: sympy.Poly) -> tuple[tuple[float, int], ...]:
     """Roots jω of p on the imaginary axis, as (ω, multiplicity), ω of either sign; exact."""
+    # p = s^k·r(s): when r(jω)'s real and imaginary parts are coprime (checked modulo a
+    # prime), the only axis root is s = 0, k times; else sympy's gcd decides.
+    coeffs = _ints(p)
+    k = 0
+    while len(coeffs) > 1 and coeffs[-1] == 0:
+        coeffs.pop()
+        k += 1
+    n = len(coeffs) - 1
+    re = [c * (-1) ** ((n - i) // 2) if (n - i) % 2 == 0 else 0 for i, c in enumerate(coeffs)]
+    im = [c * (-1) ** ((n - i) // 2) if (n - i) % 2 == 1 else 0 for i, c in enumerate(coeffs)]
+    re, im = _strip(re), _strip(im)
+    if n == 0 or (realroots.coprime(re, im) if len(re) >= len(im) else realroots.coprime(im, re)):
+        return ((0.0, k),) if k else ()
     a, b = _jw_parts(p)
     h = sympy.gcd(a, b)
     if h.degree() <= 0:
@@ -379,11 +576,22 @@ def _coeffs(p: sympy.Poly) -> FloatArray:
     return np.array([float(c) for c in p.all_coeffs()], dtype=np.float64)
 
 
+def _float_coeffs(p: _IntPoly, derivative: bool = False) -> FloatArray:
+    """p's (or p''s) coefficients rounded to floats, highest power first; [0.0] for zero."""
+    n = p.degree
+    if derivative:
+        values = [float(p.scale * (c * (n - i))) for i, c in enumerate(p.coeffs[:-1])]
+    else:
+        values = [float(p.scale * c) for c in p.coeffs]
+    return np.array(values or [0.0], dtype=np.float64)
+
+
 def _check_range(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> None:
     """Refuse a loop whose numbers double precision cannot carry (see _FLOAT_SPAN)."""
-    sizes = [abs(sympy.Rational(c)) for p in (num, den) for c in p.coeffs() if c != 0]
+    # Fractions compare exactly with the float bounds, as sympy's Rationals do.
+    sizes = [abs(_fraction(c)) for p in (num, den) for c in p.rep.to_list() if c != 0]
     if delay:
-        sizes.append(sympy.Rational(delay.numerator, delay.denominator))
+        sizes.append(delay)
     if sizes and max(sizes) / min(sizes) > _FLOAT_SPAN:
         raise MarginsUnsupported(_OUT_OF_RANGE)
     if any(not 1 / _FLOAT_SPAN <= x <= _FLOAT_SPAN for x in sizes):
@@ -401,10 +609,10 @@ class _Resp:
     num: sympy.Poly
     den: sympy.Poly
     delay: Fraction
-    n2: sympy.Poly  # |N(jω)|² in x = ω²
-    d2: sympy.Poly  # |D(jω)|²
-    p: sympy.Poly  # Re N(jω)·conj D(jω), in x
-    q: sympy.Poly  # Im N(jω)·conj D(jω) = ω·q(ω²)
+    n2i: _IntPoly  # |N(jω)|² in x = ω²
+    d2i: _IntPoly  # |D(jω)|²
+    pi: _IntPoly  # Re N(jω)·conj D(jω), in x
+    qi: _IntPoly  # Im N(jω)·conj D(jω) = ω·q(ω²)
     num_c: FloatArray
     den_c: FloatArray
     dnum_c: FloatArray
@@ -421,6 +629,23 @@ class _Resp:
     lead_negative: bool
     rel_degree: int  # deg D - deg N
     c_inf: float  # |L(∞)|: 0 strictly proper, inf improper
+
+    # The same four as sympy polynomials in x, for the exact work done once per loop.
+    @property
+    def n2(self) -> sympy.Poly:
+        return _poly_x(self.n2i)
+
+    @property
+    def d2(self) -> sympy.Poly:
+        return _poly_x(self.d2i)
+
+    @property
+    def p(self) -> sympy.Poly:
+        return _poly_x(self.pi)
+
+    @property
+    def q(self) -> sympy.Poly:
+        return _poly_x(self.qi)
 
     def l0(self, w: float) -> complex:
         s = 1j * w
@@ -439,8 +664,7 @@ class _Resp:
             if w == wz:
                 return 0.0
         # Exact at the binary ω, then rounded once: see _phase_deg on why not polyval.
-        x = sympy.Rational(Fraction(w).numerator, Fraction(w).denominator) ** 2
-        return math.sqrt(_ratio(self.n2, self.d2, x))
+        return math.sqrt(_ratio(self.n2i, self.d2i, Fraction(w) ** 2))
 
     def psi_rough(self, w: float, side: int = 0) -> float:
         """Continuous phase from the factors; `side` picks a limit at an axis root."""
@@ -482,10 +706,16 @@ def _numeric_roots(p: sympy.Poly, axis: tuple[tuple[float, int], ...]) -> tuple[
     # Square-free factors first: numpy's roots of a multiple root are only ~eps^(1/m) good.
     # These roots only choose the 2π branch of the phase (an error below π/2 is harmless).
     roots: list[complex] = []
-    for factor, mult in sympy.sqf_list(p)[1]:
-        if factor.degree() > 0:
-            found = np.roots(_coeffs(factor))
-            roots.extend(complex(r) for r in found for _ in range(mult))
+    ints = _ints(p)
+    if len(ints) > 1 and realroots.coprime(ints, _int_diff(ints)):
+        # Square-free already: sympy's one factor would be p made monic.
+        monic = [float(Fraction(c, ints[0])) for c in ints]
+        roots.extend(complex(r) for r in np.roots(np.array(monic, dtype=np.float64)))
+    elif len(ints) > 1:
+        for factor, mult in sympy.sqf_list(p)[1]:
+            if factor.degree() > 0:
+                found = np.roots(_coeffs(factor))
+                roots.extend(complex(r) for r in found for _ in range(mult))
     for wr, m in axis:
         for _ in range(m):
             nearest = min(range(len(roots)), key=lambda i: abs(roots[i] - 1j * wr))
@@ -496,25 +726,29 @@ def _numeric_roots(p: sympy.Poly, axis: tuple[tuple[float, int], ...]) -> tuple[
 @lru_cache(maxsize=256)
 def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     _check_range(num, den, delay)
-    an, bn = _jw_parts(num)
-    ad, bd = _jw_parts(den)
     axis_zeros = _axis_roots(num) if not num.is_zero else ()
     axis_poles = _axis_roots(den)
-    lead = sympy.Rational(num.LC()) / sympy.Rational(den.LC()) if not num.is_zero else 0
+    n, d = _int_poly(num), _int_poly(den)
+    lead = n.lead() / d.lead() if n.coeffs else Fraction(0)
     rel = den.degree() - num.degree()
     c_inf = 0.0 if rel > 0 else (math.inf if rel < 0 else abs(float(lead)))
-    dnum, dden = num.diff(S), den.diff(S)
-    num_c, den_c = _coeffs(num), _coeffs(den)
-    dnum_c = _coeffs(dnum) if dnum.degree() >= 0 else np.zeros(1)
-    dden_c = _coeffs(dden) if dden.degree() >= 0 else np.zeros(1)
+    num_c, den_c = _float_coeffs(n), _float_coeffs(d)
+    dnum_c, dden_c = _float_coeffs(n, derivative=True), _float_coeffs(d, derivative=True)
+    an, bn = _jw_split(n.coeffs)
+    ad, bd = _jw_split(d.coeffs)
+    # Even (odd) polynomials in ω, lowest power first: every other coefficient is x's.
+    n2 = _plus(_int_mul(an, an), _int_mul(bn, bn))[::2]
+    d2 = _plus(_int_mul(ad, ad), _int_mul(bd, bd))[::2]
+    p = _plus(_int_mul(an, ad), _int_mul(bn, bd))[::2]
+    q = _plus(_int_mul(bn, ad), [-c for c in _int_mul(an, bd)])[1::2]
     return _Resp(
         num=num,
         den=den,
         delay=delay,
-        n2=_even_in_x(an**2 + bn**2),
-        d2=_even_in_x(ad**2 + bd**2),
-        p=_even_in_x(an * ad + bn * bd),
-        q=_odd_in_x(bn * ad - an * bd),
+        n2i=_scaled(n2[::-1], n.scale * n.scale),
+        d2i=_scaled(d2[::-1], d.scale * d.scale),
+        pi=_scaled(p[::-1], n.scale * d.scale),
+        qi=_scaled(q[::-1], n.scale * d.scale),
         num_c=num_c,
         den_c=den_c,
         dnum_c=dnum_c,
@@ -534,16 +768,15 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     )
 
 
+@lru_cache(maxsize=64)
 def _with_delay(resp: _Resp, delay: Fraction) -> _Resp:
-    return _resp(resp.num, resp.den, delay)
+    """The same response with another dead time (only the delay's fields depend on it)."""
+    _check_range(resp.num, resp.den, delay)
+    return dataclasses.replace(resp, delay=delay, t=float(delay))
 
 
 # --------------------------------------------------------------------------------------------
 # Monotone pieces of the phase and the points where it meets a level
-
-
-def _w_polys(resp: _Resp) -> tuple[sympy.Poly, sympy.Poly]:
-    return _x_to_w(resp.p), _x_to_w(resp.q) * sympy.Poly(W, W, domain=sympy.QQ)
 
 
 @lru_cache(maxsize=256)
@@ -553,19 +786,29 @@ def _stationary_psi(resp: _Resp) -> tuple[float, ...] | None:
     ψ' = (P·Q' - Q·P')/(P² + Q²) - T with P + jQ = N(jω)·conj D(jω): the numerator is a
     polynomial with rational coefficients, even in ω, so its roots are isolated exactly.
     """
-    pw, qw = _w_polys(resp)
-    t = sympy.Rational(resp.delay.numerator, resp.delay.denominator)
-    m = pw * qw.diff(W) - qw * pw.diff(W) - (pw**2 + qw**2) * t
-    if m.is_zero:
+    # With P = p(x), Q = ω·q(x), x = ω²: the numerator in x is
+    # p·q + 2x·(p·q' - q·p') - T·(p² + x·q²).
+    p, q = resp.pi.coeffs, resp.qi.coeffs
+    cp, cq, t = resp.pi.scale, resp.qi.scale, resp.delay
+    pq = _int_mul(p, q)
+    cross = _int_sub(_int_mul(p, _int_diff(q)), _int_mul(q, _int_diff(p)))
+    m = _linear(
+        [
+            (cp * cq, pq),
+            (2 * cp * cq, [*cross, 0]),
+            (-t * cp * cp, _int_mul(p, p)),
+            (-t * cq * cq, [*_int_mul(q, q), 0]),
+        ]
+    )
+    if not m.coeffs:
         return None
-    return tuple(math.sqrt(x) for x in _nonneg_roots_x(_even_in_x(m), include_zero=False))
+    return tuple(math.sqrt(x) for x in _roots_x(m.coeffs, include_zero=False))
 
 
 @lru_cache(maxsize=256)
 def _stationary_mag(resp: _Resp) -> tuple[float, ...]:
     """Frequencies ω > 0 where d|L0(jω)|/dω = 0 (roots of n2'·d2 - n2·d2' in x)."""
-    m = resp.n2.diff(X) * resp.d2 - resp.n2 * resp.d2.diff(X)
-    return tuple(math.sqrt(x) for x in _nonneg_roots_x(m, include_zero=False))
+    return tuple(math.sqrt(x) for x in _wronskian_roots(resp.n2i, resp.d2i))
 
 
 @dataclass(frozen=True, slots=True)
@@ -724,7 +967,7 @@ def _hits(resp: _Resp, base: float) -> Iterator[_Hit]:
 
 def _real_band(resp: _Resp) -> bool:
     """L(jω) real on the whole axis (T = 0 and Im N·conj D ≡ 0) with some dynamics."""
-    return resp.delay == 0 and resp.q.is_zero and resp.den.degree() + resp.num.degree() > 0
+    return resp.delay == 0 and not resp.qi.coeffs and resp.den.degree() + resp.num.degree() > 0
 
 
 # --------------------------------------------------------------------------------------------
@@ -761,6 +1004,10 @@ def _split_gain(loop: LoopAlgebra) -> tuple[sympy.Poly, sympy.Poly] | str:
 
 
 def _reduce(n: sympy.Poly, d: sympy.Poly) -> tuple[sympy.Poly, sympy.Poly, int]:
+    if not n.is_zero and not d.is_zero:
+        ni, di = _ints(n), _ints(d)
+        if realroots.coprime(ni, di) if len(ni) >= len(di) else realroots.coprime(di, ni):
+            return n, d, 0  # nothing cancels
     g = sympy.gcd(n, d)
     rhp, axis = _closed_rhp_roots(g)
     return sympy.quo(n, g), sympy.quo(d, g), rhp + axis
@@ -820,20 +1067,19 @@ def _phase_deg(resp: _Resp, w: float) -> float:
     double-precision polynomial value cancels down to a few digits near a lightly damped
     pole or zero, an exact one is correctly rounded.
     """
-    wq = sympy.Rational(Fraction(w).numerator, Fraction(w).denominator)
+    wq = Fraction(w)
     x = wq * wq
-    re = resp.p.eval(x)
-    im = wq * resp.q.eval(x)
+    re = resp.pi.at(x)
+    im = wq * resp.qi.at(x)
     return math.degrees(math.atan2(float(im), float(re)) - w * resp.t)
 
 
 def _gain_crossovers(resp: _Resp, kappa: Fraction) -> tuple[float, ...] | None:
     """Frequencies with κ|L0(jω)| = 1, exact roots of κ²|N|² - |D|²; None if identically 1."""
-    k2 = sympy.Rational(kappa.numerator, kappa.denominator) ** 2
-    g = resp.n2 * k2 - resp.d2
-    if g.is_zero:
+    g = _combine((kappa * kappa, resp.n2i), (Fraction(-1), resp.d2i))
+    if not g.coeffs:
         return None
-    return tuple(math.sqrt(x) for x in _nonneg_roots_x(g, include_zero=True))
+    return tuple(math.sqrt(x) for x in _roots_x(g.coeffs, include_zero=True))
 
 
 def _phase_margins(resp: _Resp, gcs: tuple[float, ...]) -> list[float]:
@@ -872,20 +1118,27 @@ def _phase_crossovers(resp: _Resp, floor: float) -> tuple[tuple[float, float], .
     """
     out: list[tuple[float, float]] = []
     if resp.delay == 0:
-        if resp.q.is_zero:
+        if not resp.qi.coeffs:
             # L(jω) = p(ω²)/|D|² is real everywhere: negative over a band unless p ≥ 0.
-            if resp.p.is_zero or not _negative_somewhere(resp.p):
+            if not resp.pi.coeffs or not _negative_somewhere(resp.p):
                 return ()
             return None
-        p0 = resp.p.eval(0)
-        d0 = resp.d2.eval(0)
+        zero = Fraction(0)
+        p0 = resp.pi.at(zero)
+        d0 = resp.d2i.at(zero)
         if d0 != 0 and p0 < 0:
-            out.append((0.0, math.sqrt(float(resp.n2.eval(0) / d0))))
-        q = _strip_common(resp.q, resp.p)
-        for x, sign in _roots_with_sign(q, resp.p):
+            out.append((0.0, math.sqrt(float(resp.n2i.at(zero) / d0))))
+        q, p = resp.qi.coeffs, resp.pi.coeffs
+        found = None
+        if len(q) > 1 and p and realroots.coprime(q, p):
+            # Nothing to strip: q's roots with p's sign straight from the integers.
+            found = realroots.positive_roots_with_sign(q, p)
+        if found is None:
+            found = _roots_with_sign(_strip_common(resp.q, resp.p), resp.p)
+        for x, sign in found:
             if sign < 0:
                 w = math.sqrt(x)
-                out.append((w, math.sqrt(_ratio(resp.n2, resp.d2, x))))
+                out.append((w, math.sqrt(_ratio(resp.n2i, resp.d2i, x))))
         return tuple(out)
     for hit in _hits(resp, math.pi):
         if hit.r == 0.0 or math.isinf(hit.r):
@@ -912,9 +1165,9 @@ def _negative_somewhere(p: sympy.Poly) -> bool:
     return any(float(p.eval(sympy.Rational(x))) < 0 for x in points)
 
 
-def _ratio(a: sympy.Poly, b: sympy.Poly, x: sympy.Rational) -> float:
+def _ratio(a: _IntPoly, b: _IntPoly, x: Fraction) -> float:
     # Exact: a float polyval can lose every digit next to a lightly damped root.
-    return float(a.eval(x) / b.eval(x))
+    return float(a.at(x) / b.at(x))
 
 
 def _gain_margin(
@@ -932,33 +1185,32 @@ def _gain_margin(
 
 def _sensitivity_exact(resp: _Resp, kappa: Fraction) -> tuple[float, float, list[str]]:
     """sup |1/(1 + κL0(jω))| without dead time, from exact stationary points in x = ω²."""
-    k = sympy.Rational(kappa.numerator, kappa.denominator)
-    a = resp.d2
-    b = resp.d2 + resp.p * (2 * k) + resp.n2 * k**2
+    a = resp.d2i
+    b = _combine((Fraction(1), a), (2 * kappa, resp.pi), (kappa * kappa, resp.n2i))
     notes: list[str] = []
-    if b.is_zero:
+    if not b.coeffs:
         # 1 + L ≡ 0 (say L = -1): no closed loop exists, so the sensitivity is infinite at
         # every frequency.
         notes.append("1 + L(s) is identically zero: the loop is ill-posed at this gain")
         return math.inf, 0.0, notes
-    on_axis = _nonneg_roots_x(b, include_zero=True)
+    on_axis = _roots_x(b.coeffs, include_zero=True)
     if on_axis:
         notes.append(
             "a closed-loop pole lies on the imaginary axis: the sensitivity peak is infinite"
         )
         return math.inf, math.sqrt(on_axis[0]), notes
-    stationary = _nonneg_roots_x(a.diff(X) * b - a * b.diff(X), include_zero=False)
-    best, where = float(a.eval(0) / b.eval(0)), 0.0
+    stationary = _wronskian_roots(a, b)
+    best, where = _ratio(a, b, Fraction(0)), 0.0
     for x in stationary:
         value = _ratio(a, b, x)
         if value > best:
             best, where = value, math.sqrt(x)
-    if a.degree() > b.degree():
+    if a.degree > b.degree:
         limit = math.inf
-    elif a.degree() < b.degree():
+    elif a.degree < b.degree:
         limit = 0.0
     else:
-        limit = float(sympy.Rational(a.LC()) / sympy.Rational(b.LC()))
+        limit = float(a.lead() / b.lead())
     if limit > best:
         best, where = limit, math.inf
         notes.append("the sensitivity peak is the limit as ω → ∞")
@@ -1078,8 +1330,10 @@ def _beyond(resp: _Resp, kap: float, ell: float) -> float:
     """A frequency past which κ|L0(jω)| < ell for good (inf when it never falls that low)."""
     if ell <= 0.0 or resp.c_inf * kap >= ell:
         return math.inf if resp.rel_degree > 0 and ell > 0 else 0.0
-    level = sympy.Rational(ell / kap) ** 2
-    roots = _nonneg_roots_x(resp.n2 - resp.d2 * level, include_zero=True)
+    level = Fraction(ell / kap) ** 2
+    roots = _roots_x(
+        _combine((Fraction(1), resp.n2i), (-level, resp.d2i)).coeffs, include_zero=True
+    )
     marks = [_tail_start(resp), *(math.sqrt(x) for x in roots)]
     return max(marks) * 1.01
 
@@ -1427,33 +1681,62 @@ def _ms_candidates_exact(resp: _Resp, peak: Fraction) -> list[float]:
     only where F gains or loses a root x ≥ 0: a double root (the discriminant in x vanishes),
     a root at x = 0, or one from x = ∞ (the leading coefficient in x vanishes).
     """
-    k = sympy.Symbol("kk")
-    rho2 = sympy.Rational(peak.denominator, peak.numerator) ** 2
-    expr = (1 - rho2) * resp.d2.as_expr() + 2 * k * resp.p.as_expr() + k**2 * resp.n2.as_expr()
-    f = sympy.Poly(expr, X, k, domain=sympy.QQ)
-    polys = [sympy.Poly(f.as_expr().subs(X, 0), k, domain=sympy.QQ)]
-    lead = sympy.Poly(f.as_expr(), X).LC()
-    polys.append(sympy.Poly(lead, k, domain=sympy.QQ))
-    if f.degree(X) >= 1:
-        # Over the integers (denominators cleared: a constant factor, so the same roots)
-        # sympy's resultant is about ten times faster than over the rationals.
-        _, fz = f.clear_denoms(convert=True)
-        polys.append(sympy.Poly(fz.resultant(fz.diff(X)).as_expr(), k, domain=sympy.QQ))
+    rho2 = Fraction(peak.denominator, peak.numerator) ** 2
+    d2, p, n2 = resp.d2i, resp.pi, resp.n2i
+    # F over the integers (a positive constant factor: the same roots), as rows in x
+    # (highest power first), each a polynomial in K (highest power first).
+    factors = [n2.scale, 2 * p.scale, (1 - rho2) * d2.scale]
+    den = 1
+    for f in factors:
+        den = den * f.denominator // math.gcd(den, f.denominator)
+    scaled = [f.numerator * (den // f.denominator) for f in factors]
+    size = max(len(n2.coeffs), len(p.coeffs), len(d2.coeffs))
+
+    def padded(c: tuple[int, ...]) -> list[int]:
+        return [0] * (size - len(c)) + list(c)
+
+    rows = [
+        [m * c for m, c in zip(scaled, column, strict=True)]
+        for column in zip(padded(n2.coeffs), padded(p.coeffs), padded(d2.coeffs), strict=True)
+    ]
+    while rows and not any(rows[0]):
+        rows.pop(0)
+    polys = [rows[-1], rows[0]]  # F at x = 0; F's leading coefficient in x
+    if len(rows) > 1:
+        from sympy.polys.domains import ZZ
+        from sympy.polys.euclidtools import dmp_resultant
+
+        # The discriminant in x (up to a constant factor), as sympy's resultant over the
+        # integers computes it for Poly.resultant.
+        degree = len(rows) - 1
+        fz = [_strip(row) for row in rows]
+        fx = [_strip([(degree - i) * c for c in row]) for i, row in enumerate(rows[:-1])]
+        polys.append([int(c) for c in dmp_resultant(fz, fx, 1, ZZ)])
     out: list[float] = []
-    for p in polys:
-        if not p.is_zero and p.degree() > 0:
-            out.extend(_positive_roots(p))
+    for poly in polys:
+        coeffs = _primitive(poly).coeffs
+        if len(coeffs) > 1:
+            out.extend(_positive_roots(coeffs))
     return out
 
 
-def _positive_roots(p: sympy.Poly) -> list[float]:
-    fast = realroots.positive_roots(_ints(p))
+def _strip(coeffs: Sequence[int]) -> list[int]:
+    """Leading zeros dropped (sympy's dense form)."""
+    start = 0
+    while start < len(coeffs) and coeffs[start] == 0:
+        start += 1
+    return list(coeffs[start:])
+
+
+def _positive_roots(p: Sequence[int]) -> list[float]:
+    fast = realroots.positive_roots(p)
     if fast is not None:
         return [float(x) for x in fast]
+    poly = sympy.Poly(list(p), X, domain=sympy.QQ)
     out = []
-    for (a, b), _m in p.intervals():
+    for (a, b), _m in poly.intervals():
         if b > 0:
-            out.append(float(_root_value(p, a, b)))
+            out.append(float(_root_value(poly, a, b)))
     return out
 
 

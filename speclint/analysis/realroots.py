@@ -9,8 +9,10 @@ time constants, squared), roots spread over many decades. Here floating point on
 2. each suggestion is bracketed by two dyadic rationals where the exact sign of p differs;
 3. Descartes' rule of signs, applied exactly to p mapped onto an interval by a Möbius
    transformation, proves that a bracket holds exactly one root and a gap between brackets
-   none (Vincent-Collins-Akritas; an interval whose count is undecided is bisected, so the
-   search stays complete whatever numpy returned);
+   none (Vincent-Collins-Akritas). The gaps are first cut at the real parts of numpy's
+   complex roots, which would otherwise keep a gap's count positive through many
+   bisections; an interval whose count is still undecided is bisected, so the search stays
+   complete whatever numpy returned;
 4. each root is refined by Newton steps in exact rational arithmetic (rounded to dyadic
    rationals) and accepted only once an exact sign change brackets it within 1e-20 of its
    size; a step that does not converge falls back to bisection.
@@ -98,8 +100,8 @@ def _variations_on(p: Sequence[int], lo: Fraction, hi: Fraction | None) -> int:
     return sign_variations(_taylor_shift(on_unit[::-1], 1))
 
 
-def _guesses(p: Sequence[int]) -> list[float]:
-    """Approximate positive real roots from numpy (a guide only; may miss or invent)."""
+def _approx_roots(p: Sequence[int]) -> list[complex]:
+    """Every root of p by numpy's companion matrix (a guide only; may be far off)."""
     import numpy as np
 
     top = max(abs(c).bit_length() for c in p)
@@ -113,11 +115,36 @@ def _guesses(p: Sequence[int]) -> list[float]:
         found = np.roots(np.array(floats, dtype=np.float64))
     except (np.linalg.LinAlgError, ValueError):
         return []
+    return [complex(z) for z in found]
+
+
+def _guesses(roots: Sequence[complex]) -> list[float]:
+    """Approximate positive real roots among numpy's (a guide only; may miss or invent)."""
     out = []
-    for z in found:
-        re, im = float(z.real), float(z.imag)
+    for z in roots:
+        re, im = z.real, z.imag
         if re > 0.0 and math.isfinite(re) and abs(im) <= 1e-3 * re:
             out.append(re)
+    return sorted(out)
+
+
+def _splits(roots: Sequence[complex], found: Sequence[tuple[Fraction, Fraction]]) -> list[Fraction]:
+    """Points between the brackets at the real parts of the other roots right of the axis.
+
+    An interval (a, b) of the positive axis whose Descartes count is positive but holds no
+    real root owes it to roots in the disc with diameter [a, b] (and (a, ∞) to roots with
+    real part above a): cutting at each such root's real part puts it on the edge of both
+    pieces' discs, so their counts drop to 0 at once instead of after many bisections.
+    """
+    out: set[Fraction] = set()
+    for z in roots:
+        if not (z.real > 0.0 and math.isfinite(z.real)):
+            continue
+        # A short dyadic number: any point near the real part serves.
+        mantissa, exponent = math.frexp(z.real)
+        x = Fraction(round(mantissa * 2**24)) * Fraction(2) ** (exponent - 24)
+        if not any(lo <= x <= hi for lo, hi in found):
+            out.add(x)
     return sorted(out)
 
 
@@ -140,8 +167,9 @@ def isolate_positive(p: Sequence[int]) -> list[tuple[Fraction, Fraction]] | None
     p = list(p)
     if len(p) < 2 or sign_variations(p) == 0:
         return []
+    roots = _approx_roots(p)
     found: list[tuple[Fraction, Fraction]] = []
-    for r in _guesses(p):
+    for r in _guesses(roots):
         br = _bracket(p, r)
         if br is not None and (not found or br[0] > found[-1][1]):
             found.append(br)
@@ -150,12 +178,16 @@ def isolate_positive(p: Sequence[int]) -> list[tuple[Fraction, Fraction]] | None
         # exactly one each, none elsewhere.
         return found
     # Prove each piece, or bisect it until it is proven (a complete search on its own).
+    result: list[tuple[Fraction, Fraction]] = []
+    cuts = _splits(roots, found)
+    for x in cuts:
+        if value_sign(p, x) == 0:
+            result.append((x, x))
     edges: list[Fraction | None] = [Fraction(0)]
-    for bracket in found:
-        edges += bracket
+    for a, b in sorted(found + [(x, x) for x in cuts]):
+        edges += [a] if a == b else [a, b]
     edges.append(None)  # ∞
     pending = [(edges[i], edges[i + 1]) for i in range(len(edges) - 1)]
-    result: list[tuple[Fraction, Fraction]] = []
     nodes = 0
     while pending:
         lo, hi = pending.pop()
@@ -232,46 +264,72 @@ def _exact_or_middle(p: Sequence[int], lo: Fraction, hi: Fraction) -> Fraction:
 def _simplest_between(lo: Fraction, hi: Fraction) -> Fraction:
     """The rational with the smallest denominator in [lo, hi], 0 < lo ≤ hi (Stern-Brocot,
     by the continued fraction both ends share; a loop, not recursion: the fraction can
-    be thousands of terms long)."""
+    be thousands of terms long). Plain integers throughout: a Fraction per step would
+    reduce by a gcd each time, and the convergents come out in lowest terms anyway."""
+    a, b = lo.numerator, lo.denominator  # lo = a/b, hi = c/d, not kept reduced
+    c, d = hi.numerator, hi.denominator
     parts: list[int] = []
     while True:
-        floor = lo.numerator // lo.denominator
-        if floor == lo or floor + 1 <= hi:
-            value = Fraction(floor if floor == lo else floor + 1)
+        floor, rest = divmod(a, b)
+        if rest == 0:
+            num, den = floor, 1
+            break
+        if (floor + 1) * d <= c:
+            num, den = floor + 1, 1
             break
         # lo and hi share the integer part: go on with the reciprocals of the remainders.
         parts.append(floor)
-        lo, hi = 1 / (hi - floor), 1 / (lo - floor)
+        a, b, c, d = d, c - floor * d, b, rest
     for floor in reversed(parts):
-        value = floor + 1 / value
-    return value
+        num, den = floor * num + den, num
+    return Fraction(num, den)
+
+
+def _grid_scale(centre: Fraction) -> int:
+    """2^k with about 80 bits below centre's leading bit (1 for a huge centre)."""
+    bits = 80 - (abs(centre.numerator).bit_length() - centre.denominator.bit_length())
+    return 1 << bits if bits >= 0 else 1
 
 
 def _dyadic_below(x: Fraction, centre: Fraction) -> Fraction:
-    bits = 80 - (abs(centre).numerator.bit_length() - abs(centre).denominator.bit_length())
-    scale = 1 << max(bits, 0) if bits >= 0 else 1
+    scale = _grid_scale(centre)
     return Fraction(math.floor(x * scale), scale)
 
 
 def _dyadic_above(x: Fraction, centre: Fraction) -> Fraction:
-    bits = 80 - (abs(centre).numerator.bit_length() - abs(centre).denominator.bit_length())
-    scale = 1 << max(bits, 0) if bits >= 0 else 1
+    scale = _grid_scale(centre)
     return Fraction(math.ceil(x * scale), scale)
 
 
 def _newton(p: Sequence[int], dp: Sequence[int], lo: Fraction, hi: Fraction) -> Fraction | None:
+    # In plain integers: x = u/v, p(x) = P/v^n and p'(x) = D/v^(n-1), so the Newton step is
+    # P/(v·D) and the next point (u·D - P)/(v·D), rounded down to the dyadic grid; the
+    # Fractions this replaces would reduce every intermediate by a gcd.
     x = (lo + hi) / 2
     for _ in range(_NEWTON_STEPS):
-        slope = _value(dp, x)
-        if slope == 0:
+        u, v = x.numerator, x.denominator
+        num, den = _homogeneous(p, u, v), v * _homogeneous(dp, u, v)
+        if den == 0:
             return None
-        step = _value(p, x) / slope
-        x = _dyadic_below(x - step, x)
+        if den < 0:
+            num, den = -num, -den
+        scale = _grid_scale(x)
+        x = Fraction((u * (den // v) - num) * scale // den, scale)
         if not lo <= x <= hi:
             return None
-        if abs(step) <= abs(x) * REL_EPS / 8:
+        # |step| ≤ |x|·REL_EPS/8 with step = num/den, in integers.
+        if abs(num) * 8 * REL_EPS.denominator * x.denominator <= abs(x.numerator) * den:
             return x
     return None
+
+
+def _homogeneous(p: Sequence[int], u: int, v: int) -> int:
+    """v^n·p(u/v), n = deg p."""
+    acc, power = p[0], 1
+    for c in p[1:]:
+        power *= v
+        acc = acc * u + c * power
+    return acc
 
 
 def positive_roots(p: Sequence[int], include_zero: bool = False) -> list[Fraction] | None:
@@ -309,8 +367,50 @@ def square_free(p: Sequence[int]) -> list[int]:
     q = list(p)
     if len(q) <= 2:
         return q
+    if coprime(q, _derivative(q)):
+        # gcd(p, p') = 1: the square-free part is p itself, made primitive and positive
+        # leading, as sympy's dup_sqf_part returns it.
+        g = 0
+        for c in q:
+            g = math.gcd(g, c)
+        g = g if q[0] > 0 else -g
+        return [c // g for c in q]
     part = dup_sqf_part([ZZ(c) for c in q], ZZ)
     return [int(c) for c in part]
+
+
+_PRIME = 2**30 - 35  # the largest prime below 2^30: residues and their products stay small
+
+
+def coprime(p: Sequence[int], q: Sequence[int]) -> bool:
+    """True when p and q (integers, highest power first, p[0] ≠ 0) provably share no root,
+    from their gcd modulo a prime; False when they do or the test cannot tell.
+
+    Were g = gcd(p, q) over the rationals of degree d ≥ 1,
+    its primitive integer form would divide p over the integers (Gauss's lemma), so its
+    leading coefficient would divide p's; a prime that does not divide p's leading
+    coefficient keeps g of degree d modulo the prime, and g divides both residues there."""
+    if not p or p[0] % _PRIME == 0:
+        return False
+    a = [c % _PRIME for c in p]
+    b = [c % _PRIME for c in q]
+    while b and b[0] == 0:
+        b.pop(0)
+    while b:
+        if len(b) == 1:
+            return True  # a non-zero constant: the residues are coprime
+        # a mod b over the integers modulo the prime.
+        inv = pow(b[0], -1, _PRIME)
+        while len(a) >= len(b):
+            factor = a[0] * inv % _PRIME
+            if factor:
+                for i in range(1, len(b)):
+                    a[i] = (a[i] - factor * b[i]) % _PRIME
+            a.pop(0)
+            while a and a[0] == 0:
+                a.pop(0)
+        a, b = b, a
+    return False  # the remainder sequence ended in a polynomial of positive degree
 
 
 def integer_coefficients(coeffs: Sequence[Fraction]) -> list[int]:
