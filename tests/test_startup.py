@@ -117,3 +117,25 @@ def test_two_runs_at_once_leave_valid_entries(tmp_path):
     assert (root / "fresh.json").read_bytes() == first
     assert _probe(root, "check", "--format", "json", "--output", "third.json") == ([], 1)
     assert (root / "third.json").read_bytes() == first
+
+
+def test_a_loop_without_frequency_searches_needs_no_scipy(tmp_path):
+    # scipy.optimize costs about half a second to import. The figures of a loop without dead
+    # time are roots of polynomials; only a margin criterion's searches (or dead time) need
+    # scipy, so a hook that rechecks a tracking requirement does not pay for it.
+    spec = (
+        'speclint: 1\nloops:\n  drive:\n    plant: "1/(s*(s + 2))"\n    controller: K\n'
+        "    gain: {symbol: K, nominal: 1}\n"
+        "requirements:\n  - id: R-1\n    loop: drive\n"
+        "    tracking: {reference: ramp, magnitude: 1, max_error: 5}\n"
+    )
+    (tmp_path / "plain.yaml").write_text(spec)
+    used, _ = _probe(tmp_path, "check", "plain.yaml", "--no-cache", "-o", "a.txt")
+    assert used == ["numpy", "sympy"]
+    margins = spec.replace(
+        "tracking: {reference: ramp, magnitude: 1, max_error: 5}",
+        "margins: {min_phase_margin_deg: 30}",
+    )
+    (tmp_path / "margins.yaml").write_text(margins)
+    used, _ = _probe(tmp_path, "check", "margins.yaml", "--no-cache", "-o", "b.txt")
+    assert "scipy" in used

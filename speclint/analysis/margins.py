@@ -78,7 +78,6 @@ from typing import ParamSpec, TypeVar
 import numpy as np
 import numpy.typing as npt
 import sympy
-from scipy.optimize import brentq
 from sympy.external.pythonmpq import PythonMPQ
 
 from speclint.analysis import realroots
@@ -914,6 +913,9 @@ def _solve_level(resp: _Resp, piece: _Piece, level: float) -> float:
                 # A dead time so short against the loop's dynamics that its phase reaches
                 # -180° only beyond double precision's range of frequencies.
                 raise MarginsUnsupported(_OUT_OF_RANGE)
+    # Imported here: only the frequency searches need it, and it costs ~0.5 s to import.
+    from scipy.optimize import brentq
+
     try:
         return float(brentq(f, lo, hi, xtol=1e-300, rtol=8.9e-16, maxiter=400))
     except RuntimeError:  # no convergence: the phase is noise at this scale of frequency
@@ -1244,6 +1246,8 @@ def _grid(resp: _Resp, w_hi: float) -> FloatArray:
 
 def _sensitivity_delayed(resp: _Resp, kappa: Fraction) -> tuple[float, float, list[str]]:
     """sup |1/(1 + κL0(jω)e^{-jωT})| by a grid and brentq on the exact derivative."""
+    from scipy.optimize import brentq
+
     kap = float(kappa)
     notes: list[str] = []
     limit = 0.0
