@@ -60,6 +60,7 @@ from typing import Any, Literal
 
 import sympy
 
+from speclint.analysis import realroots
 from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, characteristic, product
 from speclint.analysis.gainset import (
     INF,
@@ -67,10 +68,15 @@ from speclint.analysis.gainset import (
     Exact,
     GainSet,
     Interval,
+    Number,
     exact,
+    factor_roots,
     format_number,
+    irreducible_factors,
     less,
-    rational_between,
+    number_between,
+    number_less,
+    to_exact,
 )
 
 EPS = sympy.Symbol("ε", positive=True)
@@ -152,7 +158,12 @@ def routh_table(p: sympy.Poly) -> RouthTable:
 
 def is_hurwitz(p: sympy.Poly) -> bool:
     """True when every root of p(s) lies strictly in the left half plane (exact)."""
-    coeffs = [Fraction(int(c.p), int(c.q)) for c in _coefficients(p)]
+    return _hurwitz([Fraction(int(c.p), int(c.q)) for c in _coefficients(p)])
+
+
+def _hurwitz(coeffs: list[Fraction]) -> bool:
+    """is_hurwitz on rational coefficients, highest power first (leading zeros allowed)."""
+    coeffs = list(itertools.dropwhile(lambda c: c == 0, coeffs))
     if not coeffs:
         return False
     if coeffs[0] < 0:
@@ -365,26 +376,43 @@ class StableSet:
     ``unsupported`` says why the set could not be computed; ``gains`` is then empty and
     must not be read as "unstable".
 
-    ``boundaries`` are classified when read, not when the set is computed: finding each
-    crossing frequency ω0 (resultants, a 50-digit choice) costs more than the whole set,
-    and ``speclint check`` never shows them. ``ends`` keeps what that needs: each end the
-    loop sets with its irreducible polynomial, and ``columns`` the coefficients in s.
+    ``boundaries``, ``first_column`` and ``nominal_table`` are worked out when read, not
+    when the set is computed: finding each crossing frequency ω0 (resultants, a 50-digit
+    choice) costs more than the whole set, writing the first column as expressions and
+    building the nominal table with its root counts cost about as much as the set, and
+    ``speclint check`` shows none of them. ``ends`` keeps what the boundaries need: each
+    end the loop sets with its irreducible polynomial; ``columns`` holds the coefficients
+    in s, ``column_entries`` the first-column entries (elements of the field Q(k)), and
+    ``nominal_gain`` the gain of the nominal table (None: no table).
     """
 
     gains: GainSet
     nominal_stable: bool | None
-    nominal_table: RouthTable | None
     depends_on_gain: bool
-    first_column: tuple[sympy.Expr, ...] = ()
     notes: tuple[str, ...] = ()
     unsupported: str | None = None
     ends: tuple[tuple[Exact, sympy.Poly], ...] = ()
     columns: tuple[sympy.Poly, ...] = ()
+    column_entries: tuple[Any, ...] = ()
+    nominal_gain: Exact | None = None
 
     @property
     def boundaries(self) -> tuple[Boundary, ...]:
         """How a root crosses at each end of the stable intervals that the loop sets."""
         return tuple(_classify(gain, factor, list(self.columns)) for gain, factor in self.ends)
+
+    @property
+    def first_column(self) -> tuple[sympy.Expr, ...]:
+        """The Routh first-column entries as rational functions of ``algebra.K``."""
+        return tuple(f.as_expr() for f in self.column_entries)
+
+    @property
+    def nominal_table(self) -> RouthTable | None:
+        """The Routh table at the nominal gain (for a loop without gain: its only one)."""
+        if self.nominal_gain is None:
+            return None
+        at_nominal = _poly_at(list(self.columns), self.nominal_gain)
+        return None if at_nominal.is_zero else routh_table(at_nominal)
 
 
 def stable_gains(loop: LoopAlgebra) -> StableSet:
@@ -415,25 +443,27 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
             depends, "1 + L(∞) = 0 for every gain: the closed loop is improper (ill-posed)"
         )
     columns = _coefficients_in_k(p, degree)
-    nominal_stable, nominal_table = _nominal_verdict(columns, loop.nominal, depends)
+    at_k = [_fractions(c) for c in columns]
+    nominal_stable, nominal_gain = _nominal_verdict(at_k, loop.nominal, depends)
     if not depends:
         verdict = bool(nominal_stable)
         return StableSet(
             gains=domain if verdict else GainSet.empty(),
             nominal_stable=verdict,
-            nominal_table=nominal_table,
             depends_on_gain=False,
+            columns=tuple(columns),
+            nominal_gain=nominal_gain,
         )
 
     first_column, degenerate = _symbolic_first_column(columns)
-    column_exprs = tuple(f.as_expr() for f in first_column)
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
             nominal_stable=nominal_stable,
-            nominal_table=nominal_table,
             depends_on_gain=True,
-            first_column=column_exprs,
+            columns=tuple(columns),
+            column_entries=tuple(first_column),
+            nominal_gain=nominal_gain,
             notes=(
                 f"the first-column entry of row s^{degenerate} of the Routh table is zero for "
                 "every gain: no gain makes the loop stable",
@@ -441,31 +471,55 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         )
 
     candidates = _candidates(first_column)
-    ends: list[Exact] = [ZERO, *(c for c, _ in candidates), INF]
-    verdicts = [
-        is_hurwitz(_poly_at(columns, rational_between(lo, hi)))
-        for lo, hi in itertools.pairwise(ends)
-    ]
+    ends: list[Number | None] = [Fraction(0), *(c for c, _ in candidates), None]
+    verdicts = [_hurwitz_at(at_k, number_between(lo, hi)) for lo, hi in itertools.pairwise(ends)]
+    # Only the ends of stable pieces become sympy numbers (a radical or a CRootOf costs
+    # milliseconds to write down; most candidates separate two unstable pieces).
     pieces = [
-        Interval(lo, hi)
+        Interval(_exact_end(lo), _exact_end(hi))
         for (lo, hi), ok in zip(itertools.pairwise(ends), verdicts, strict=True)
         if ok
     ]
     gains = GainSet.of(pieces).intersect(domain)
     ends_set = tuple(
-        (gain, factor)
+        (exact_gain, _monic(factor))
         for i, (gain, factor) in enumerate(candidates)
-        if (verdicts[i] or verdicts[i + 1]) and domain.contains(gain)
+        if (verdicts[i] or verdicts[i + 1]) and domain.contains(exact_gain := to_exact(gain))
     )
     return StableSet(
         gains=gains,
         nominal_stable=nominal_stable,
-        nominal_table=nominal_table,
         depends_on_gain=True,
-        first_column=column_exprs,
         ends=ends_set,
         columns=tuple(columns),
+        column_entries=tuple(first_column),
+        nominal_gain=nominal_gain,
     )
+
+
+def _exact_end(x: Number | None) -> Exact:
+    return INF if x is None else to_exact(x)
+
+
+def _fractions(p: sympy.Poly) -> list[Fraction]:
+    """Rational coefficients of a univariate polynomial, highest power first."""
+    return [Fraction(int(c.numerator), int(c.denominator)) for c in p.rep.to_list()]
+
+
+def _hurwitz_at(at_k: list[list[Fraction]], k: Fraction) -> bool:
+    """is_hurwitz of P(s, k), given P's coefficients in s as polynomials in k."""
+    return _hurwitz([_value_at(c, k) for c in at_k])
+
+
+def _value_at(coeffs: list[Fraction], x: Fraction) -> Fraction:
+    acc = Fraction(0)
+    for c in coeffs:
+        acc = acc * x + c
+    return acc
+
+
+def _monic(factor: tuple[int, ...]) -> sympy.Poly:
+    return sympy.Poly(list(factor), K, domain=sympy.QQ).monic()
 
 
 def _unsupported(depends: bool, why: str) -> StableSet:
@@ -473,7 +527,6 @@ def _unsupported(depends: bool, why: str) -> StableSet:
     return StableSet(
         gains=GainSet.empty(),
         nominal_stable=None,
-        nominal_table=None,
         depends_on_gain=depends,
         unsupported=why,
     )
@@ -483,7 +536,6 @@ def _nowhere_stable(depends: bool, note: str) -> StableSet:
     return StableSet(
         gains=GainSet.empty(),
         nominal_stable=False,
-        nominal_table=None,
         depends_on_gain=depends,
         notes=(note,),
     )
@@ -507,17 +559,17 @@ def _poly_at(columns: list[sympy.Poly], k: Exact) -> sympy.Poly:
 
 
 def _nominal_verdict(
-    columns: list[sympy.Poly], nominal: Fraction | None, depends: bool
-) -> tuple[bool | None, RouthTable | None]:
+    at_k: list[list[Fraction]], nominal: Fraction | None, depends: bool
+) -> tuple[bool | None, Exact | None]:
+    """The exact verdict at the nominal gain, and that gain (for the Routh table)."""
     if depends and nominal is None:
         return None, None
-    k = exact(nominal) if nominal is not None else ZERO
-    if columns[0].eval(k) == 0:
+    k = nominal if nominal is not None else Fraction(0)
+    if _value_at(at_k[0], k) == 0:
         # the degree drops: a closed-loop pole at s = ∞, the loop is ill-posed here
-        pn = _poly_at(columns, k)
-        return False, (routh_table(pn) if not pn.is_zero else None)
-    table = routh_table(_poly_at(columns, k))
-    return table.stable, table
+        return False, exact(k)
+    # Hurwitz exactly when the table's root counts find every root in the left half plane.
+    return _hurwitz_at(at_k, k), exact(k)
 
 
 def _symbolic_first_column(
@@ -543,29 +595,37 @@ def _symbolic_first_column(
     return column, None
 
 
-def _candidates(first_column: list[Any]) -> list[tuple[Exact, sympy.Poly]]:
-    """Positive real roots of every numerator and denominator factor, sorted, with factor."""
-    factors: dict[tuple[object, ...], sympy.Poly] = {}
+def _candidates(first_column: list[Any]) -> list[tuple[Number, tuple[int, ...]]]:
+    """Positive real roots of every numerator and denominator factor, sorted, each with its
+    irreducible factor (integer coefficients, highest power first)."""
+    factors: dict[tuple[int, ...], None] = {}
     for f in first_column:
         for part in (f.numer, f.denom):
-            poly = sympy.Poly.from_dict(dict(part) or {(0,): 0}, K, domain=sympy.QQ)
-            if poly.degree() <= 0:
+            terms = dict(part)
+            top = max((e for (e,) in terms), default=0)
+            if top <= 0:
                 continue
-            for factor, _ in poly.factor_list()[1]:
-                monic = factor.monic()
-                factors[tuple(monic.all_coeffs())] = monic
-    found: list[tuple[Exact, sympy.Poly]] = []
-    for factor in factors.values():
-        for root in factor.real_roots(multiple=True):
-            if less(ZERO, root):
-                found.append((root, factor))
+            coeffs = [terms.get((e,), 0) for e in range(top, -1, -1)]
+            ints = realroots.integer_coefficients(
+                [Fraction(int(c.numerator), int(c.denominator)) for c in coeffs]
+            )
+            while ints[-1] == 0:
+                ints.pop()  # the root k = 0 is not a candidate
+            if len(ints) >= 2:
+                factors.update(dict.fromkeys(irreducible_factors(ints)))
+    found: list[tuple[Number, tuple[int, ...]]] = []
+    for factor in factors:
+        found.extend((root, factor) for root in factor_roots(factor) if number_less(_ZERO, root))
     return sorted(found, key=functools.cmp_to_key(_compare))
 
 
-def _compare(a: tuple[Exact, sympy.Poly], b: tuple[Exact, sympy.Poly]) -> int:
-    if a[0] == b[0]:
-        return 0
-    return -1 if less(a[0], b[0]) else 1
+_ZERO = Fraction(0)
+
+
+def _compare(a: tuple[Number, tuple[int, ...]], b: tuple[Number, tuple[int, ...]]) -> int:
+    if number_less(a[0], b[0]):
+        return -1
+    return 1 if number_less(b[0], a[0]) else 0
 
 
 def _classify(gain: Exact, factor: sympy.Poly, columns: list[sympy.Poly]) -> Boundary:
