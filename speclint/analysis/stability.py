@@ -54,14 +54,15 @@ from __future__ import annotations
 
 import functools
 import itertools
+import math
 from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any, Literal
 
 import sympy
+from sympy.polys.domains import ZZ
 
-from speclint.analysis import realroots
-from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, characteristic, product
+from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, characteristic
 from speclint.analysis.gainset import (
     INF,
     ZERO,
@@ -382,8 +383,7 @@ class StableSet:
     building the nominal table with its root counts cost about as much as the set, and
     ``speclint check`` shows none of them. ``ends`` keeps what the boundaries need: each
     end the loop sets with its irreducible polynomial; ``columns`` holds the coefficients
-    in s, ``column_entries`` the first-column entries (elements of the field Q(k)), and
-    ``nominal_gain`` the gain of the nominal table (None: no table).
+    in s, and ``nominal_gain`` the gain of the nominal table (None: no table).
     """
 
     gains: GainSet
@@ -393,7 +393,6 @@ class StableSet:
     unsupported: str | None = None
     ends: tuple[tuple[Exact, sympy.Poly], ...] = ()
     columns: tuple[sympy.Poly, ...] = ()
-    column_entries: tuple[Any, ...] = ()
     nominal_gain: Exact | None = None
 
     @property
@@ -404,7 +403,10 @@ class StableSet:
     @property
     def first_column(self) -> tuple[sympy.Expr, ...]:
         """The Routh first-column entries as rational functions of ``algebra.K``."""
-        return tuple(f.as_expr() for f in self.column_entries)
+        if not self.depends_on_gain or not self.columns:
+            return ()
+        entries, _ = _symbolic_first_column(list(self.columns))
+        return tuple(f.as_expr() for f in entries)
 
     @property
     def nominal_table(self) -> RouthTable | None:
@@ -436,9 +438,11 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
             f"analysis (at most {MAX_DEGREE})",
         )
     blocks = (loop.controller, loop.plant, loop.feedback)
-    dens = product(*(Ratio(b.den, sympy.Poly(1, S, K, domain=sympy.QQ)) for b in blocks)).num
-    nums = product(*(Ratio(b.num, sympy.Poly(1, S, K, domain=sympy.QQ)) for b in blocks)).num
-    if degree < max(dens.degree(S), nums.degree(S)):
+    # Degrees in s of the products of the denominators and of the numerators: over a field
+    # the degrees of factors add (every block polynomial is non-zero).
+    dens = sum(int(b.den.degree(S)) for b in blocks)
+    nums = sum(int(b.num.degree(S)) for b in blocks)
+    if degree < max(dens, nums):
         return _nowhere_stable(
             depends, "1 + L(∞) = 0 for every gain: the closed loop is improper (ill-posed)"
         )
@@ -455,14 +459,13 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
             nominal_gain=nominal_gain,
         )
 
-    first_column, degenerate = _symbolic_first_column(columns)
+    parts, degenerate = _first_column_parts(columns)
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
             nominal_stable=nominal_stable,
             depends_on_gain=True,
             columns=tuple(columns),
-            column_entries=tuple(first_column),
             nominal_gain=nominal_gain,
             notes=(
                 f"the first-column entry of row s^{degenerate} of the Routh table is zero for "
@@ -470,7 +473,7 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
             ),
         )
 
-    candidates = _candidates(first_column)
+    candidates = _candidates(parts)
     ends: list[Number | None] = [Fraction(0), *(c for c, _ in candidates), None]
     verdicts = [_hurwitz_at(at_k, number_between(lo, hi)) for lo, hi in itertools.pairwise(ends)]
     # Only the ends of stable pieces become sympy numbers (a radical or a CRootOf costs
@@ -492,7 +495,6 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         depends_on_gain=True,
         ends=ends_set,
         columns=tuple(columns),
-        column_entries=tuple(first_column),
         nominal_gain=nominal_gain,
     )
 
@@ -595,24 +597,78 @@ def _symbolic_first_column(
     return column, None
 
 
-def _candidates(first_column: list[Any]) -> list[tuple[Number, tuple[int, ...]]]:
+def _first_column_parts(
+    columns: list[sympy.Poly],
+) -> tuple[list[tuple[list[int], list[int]]], int | None]:
+    """Numerator and denominator of each first-column entry over Q(k), in lowest terms up
+    to a constant factor (integer coefficients, highest power first), and the power of the
+    row whose entry is ≡ 0, if any. Fraction-free: row i of the table times the Hurwitz
+    determinant Δ(i−1) is a polynomial F(i) (a minor of the Hurwitz matrix), with
+    F(i+1, j) = (F(i, 0)·F(i−1, j+1) − F(i−1, 0)·F(i, j+1)) / F(i−2, 0) an exact division
+    and F(i, 0) = Δ(i); so the entries are F(0, 0), F(1, 0) and Δ(i)/Δ(i−1) (Gantmacher,
+    The Theory of Matrices, vol. 2, ch. XV: the Routh scheme and the Hurwitz minors)."""
+    from sympy.polys.densearith import dup_exquo, dup_mul, dup_sub
+    from sympy.polys.euclidtools import dup_inner_gcd
+
+    n = len(columns) - 1
+    at_k = [_fractions(c) for c in columns]
+    den = 1
+    for coeffs in at_k:
+        for c in coeffs:
+            den = den * c.denominator // math.gcd(den, c.denominator)
+    # P(s, k) times a constant: integer coefficients, the same entries up to constants.
+    ints = [_strip([int(c * den) for c in coeffs]) for coeffs in at_k]
+    width = n // 2 + 1
+
+    def padded(xs: list[list[int]]) -> list[list[int]]:
+        return xs + [[] for _ in range(width - len(xs))]
+
+    prev, cur = padded(ints[0::2]), padded(ints[1::2])
+    parts = [(prev[0], [1])]
+    divisor: list[int] = [1]  # F(i−2, 0), or 1 for the first two rows
+    for i in range(1, n + 1):
+        if not cur[0]:
+            return parts, n - i
+        if i == 1:
+            parts.append((cur[0], [1]))
+        else:
+            _, num, den_part = dup_inner_gcd(cur[0], prev[0], ZZ)
+            parts.append((num, den_part))
+        if i == n:
+            break
+        nxt = [
+            dup_exquo(
+                dup_sub(dup_mul(cur[0], prev[j + 1], ZZ), dup_mul(prev[0], cur[j + 1], ZZ), ZZ),
+                divisor,
+                ZZ,
+            )
+            for j in range(width - 1)
+        ]
+        divisor = prev[0] if i >= 2 else [1]
+        prev, cur = cur, [*nxt, []]
+    return parts, None
+
+
+def _strip(p: list[int]) -> list[int]:
+    while p and p[0] == 0:
+        p = p[1:]
+    return p
+
+
+def _candidates(parts: list[tuple[list[int], list[int]]]) -> list[tuple[Number, tuple[int, ...]]]:
     """Positive real roots of every numerator and denominator factor, sorted, each with its
     irreducible factor (integer coefficients, highest power first)."""
     factors: dict[tuple[int, ...], None] = {}
-    for f in first_column:
-        for part in (f.numer, f.denom):
-            terms = dict(part)
-            top = max((e for (e,) in terms), default=0)
-            if top <= 0:
-                continue
-            coeffs = [terms.get((e,), 0) for e in range(top, -1, -1)]
-            ints = realroots.integer_coefficients(
-                [Fraction(int(c.numerator), int(c.denominator)) for c in coeffs]
-            )
-            while ints[-1] == 0:
-                ints.pop()  # the root k = 0 is not a candidate
-            if len(ints) >= 2:
-                factors.update(dict.fromkeys(irreducible_factors(ints)))
+    seen: set[tuple[int, ...]] = set()
+    for part in (q for pair in parts for q in pair):
+        ints = _strip([int(c) for c in part])
+        while len(ints) >= 2 and ints[-1] == 0:
+            ints.pop()  # the root k = 0 is not a candidate
+        key = tuple(ints)
+        if len(ints) < 2 or key in seen:
+            continue
+        seen.add(key)
+        factors.update(dict.fromkeys(irreducible_factors(ints)))
     found: list[tuple[Number, tuple[int, ...]]] = []
     for factor in factors:
         found.extend((root, factor) for root in factor_roots(factor) if number_less(_ZERO, root))
