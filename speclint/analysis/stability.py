@@ -796,8 +796,8 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
     found: list[HiddenMode] = []
     for pole_name, pole_block in blocks:
         for zero_name, zero_block in blocks:
-            common = pole_block.den.gcd(zero_block.num)
-            if common.total_degree() <= 0:
+            common = _common_in_s(pole_block.den, zero_block.num)
+            if common is None or common.total_degree() <= 0:
                 continue
             for factor, multiplicity in common.factor_list()[1]:
                 if factor.degree(K) > 0 or factor.degree(S) <= 0:
@@ -808,6 +808,32 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
                 unstable = routh_table(in_s).rhp > 0
                 found.append(HiddenMode(in_s, zero_name, pole_name, multiplicity, unstable))
     return found
+
+
+_S_RING, _ = sympy.ring([S], sympy.QQ)
+
+
+def _common_in_s(a: sympy.Poly, b: sympy.Poly) -> sympy.Poly | None:
+    """The factors free of the gain common to a and b, with their multiplicities (as a
+    polynomial in (S, K)); None when there is none. Only those are reported, and a factor
+    f(s) divides a(s, k) = Σ a_j(s)·k^j exactly when it divides every a_j: so this is the
+    gcd of all those coefficients over Q[s], one-variable gcds instead of a two-variable
+    one. Polynomials in other generators take the general gcd."""
+    if a.gens != (S, K) or b.gens != (S, K):
+        return a.gcd(b)
+    parts: dict[tuple[int, int], dict[tuple[int], Any]] = {}
+    for which, p in enumerate((a, b)):
+        for (i, j), c in p.as_dict(native=True).items():
+            parts.setdefault((which, j), {})[(i,)] = c
+    g = None
+    for terms in parts.values():
+        element = _S_RING.from_dict(terms)
+        g = element if g is None else g.gcd(element)
+        if g.is_ground:
+            return None
+    if g is None:
+        return None
+    return sympy.Poly.from_dict({(i, 0): c for (i,), c in g.items()}, S, K, domain=sympy.QQ)
 
 
 def _roots_text(factor: sympy.Poly, multiplicity: int) -> str:
