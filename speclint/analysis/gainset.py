@@ -399,8 +399,10 @@ def _float_against_form(a: Exact, na: Number, b: Exact, nb: Number) -> bool:
     )
 
 
+@functools.lru_cache(maxsize=4096)
 def _sympy_less(a: Exact, b: Exact) -> bool:
-    """a < b for numbers made elsewhere (a Float end, a CRootOf from sympy itself)."""
+    """a < b for numbers made elsewhere (a CRootOf from sympy itself), or a Float end
+    against a radical; remembered, as the same pairs meet again in every set operation."""
     if a == b:
         return False
     if a is INF or b == -INF:
@@ -648,7 +650,9 @@ def _min_end(a: Exact, ac: bool, b: Exact, bc: bool) -> tuple[Exact, bool]:
     return (a, ac) if less(a, b) else (b, bc)
 
 
+@functools.lru_cache(maxsize=4096)
 def to_float(x: Exact) -> float:
+    """x to 15 significant digits (remembered: an end is written in many messages)."""
     if x is INF:
         return float("inf")
     if x == -INF:
