@@ -381,6 +381,8 @@ def less(a: Exact, b: Exact) -> bool:
         return False
     if b is INF or a is _NEG_INF:
         return True
+    if a.is_Rational and b.is_Rational:
+        return bool(a.p * b.q < b.p * a.q)  # denominators are positive
     na, nb = as_number(a), as_number(b)
     if na is not None and nb is not None and not _float_against_form(a, na, b, nb):
         decided = _number_less(na, nb)
@@ -593,6 +595,12 @@ class GainSet:
         return any(iv.contains(x) for iv in self.intervals)
 
     def intersect(self, other: GainSet) -> GainSet:
+        # The whole line leaves every piece of the other set as it is (the general loop
+        # below would rebuild each one unchanged).
+        if self._is_everything():
+            return GainSet.of(other.intervals)
+        if other._is_everything():
+            return GainSet.of(self.intervals)
         out: list[Interval] = []
         for a in self.intervals:
             for b in other.intervals:
@@ -602,6 +610,13 @@ class GainSet:
                 if not iv.is_empty():
                     out.append(iv)
         return GainSet.of(out)
+
+    def _is_everything(self) -> bool:
+        return (
+            len(self.intervals) == 1
+            and self.intervals[0].lo is _NEG_INF
+            and self.intervals[0].hi is INF
+        )
 
     def union(self, other: GainSet) -> GainSet:
         return GainSet.of(self.intervals + other.intervals)

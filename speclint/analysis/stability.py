@@ -62,6 +62,7 @@ from typing import Any, Literal
 import sympy
 from sympy.polys.domains import ZZ
 
+from speclint.analysis import realroots
 from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, characteristic
 from speclint.analysis.gainset import (
     INF,
@@ -668,6 +669,8 @@ def _candidates(parts: list[tuple[list[int], list[int]]]) -> list[tuple[Number, 
         if len(ints) < 2 or key in seen:
             continue
         seen.add(key)
+        if realroots.sign_variations(ints) == 0:
+            continue  # no positive root (Descartes' rule of signs): nothing to factor
         factors.update(dict.fromkeys(irreducible_factors(ints)))
     found: list[tuple[Number, tuple[int, ...]]] = []
     for factor in factors:
