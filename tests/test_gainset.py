@@ -22,6 +22,7 @@ from speclint.analysis.gainset import (
     rational_between,
     real_roots,
     to_exact,
+    to_float,
     where_sign,
 )
 
@@ -183,3 +184,12 @@ def test_comparisons_of_close_numbers() -> None:
         assert less(to_exact(x), to_exact(sqrt2)) == below
     mid = number_between(sqrt2, near)
     assert 2 < mid * mid < 2 + Fraction(1, 10**40)
+
+
+@settings(max_examples=40, deadline=None)
+@given(polynomials)
+def test_floats_of_roots_are_sympys(p: sympy.Poly) -> None:
+    # Reference: sympy's own numbers for these roots (its real_roots, its isolation, its
+    # evalf to 17 digits, then 15), as to_float has always written an end.
+    theirs = [float(sympy.Float(r.evalf(17), 15)) for r in sympy_distinct_roots(p)]
+    assert [to_float(to_exact(r)) for r in real_roots(coefficients(p))] == theirs

@@ -672,7 +672,24 @@ def to_float(x: Exact) -> float:
         return float("inf")
     if x == -INF:
         return float("-inf")
+    root = _KNOWN.get(x)
+    if root is not None:
+        return _float_of(root)
     return float(sympy.Float(x.evalf(17), 15))
+
+
+def _float_of(root: Root) -> float:
+    """What to_float gives for a root's sympy number: its value rounded to nearest at 60 bits
+    (evalf to 17 digits), then at 53 (15 digits). Found exactly, by narrowing the root's
+    interval until both ends round alike at 60 bits, instead of by sympy's refinement of
+    a CRootOf interval (a millisecond each)."""
+    from mpmath.libmp import from_rational, mpf_pos, to_float  # type: ignore[import-untyped]
+
+    while True:
+        lo = from_rational(root.lo.numerator, root.lo.denominator, 60, "n")
+        if lo == from_rational(root.hi.numerator, root.hi.denominator, 60, "n"):
+            return float(to_float(mpf_pos(lo, 53, "n")))
+        root.narrow()
 
 
 def format_number(x: Exact, digits: int = 6) -> str:

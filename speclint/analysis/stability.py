@@ -824,6 +824,8 @@ def _common_in_s(a: sympy.Poly, b: sympy.Poly) -> sympy.Poly | None:
     one. Polynomials in other generators take the general gcd."""
     if a.gens != (S, K) or b.gens != (S, K):
         return a.gcd(b)
+    if (a.is_ground and not a.is_zero) or (b.is_ground and not b.is_zero):
+        return None  # a non-zero constant shares no factor
     parts: dict[tuple[int, int], dict[tuple[int], Any]] = {}
     for which, p in enumerate((a, b)):
         for (i, j), c in p.as_dict(native=True).items():
