@@ -11,7 +11,7 @@ import sympy
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from speclint.analysis import steady
+from speclint.analysis import gainset, steady
 from speclint.analysis.gainset import (
     INF,
     GainSet,
@@ -193,3 +193,20 @@ def test_floats_of_roots_are_sympys(p: sympy.Poly) -> None:
     # evalf to 17 digits, then 15), as to_float has always written an end.
     theirs = [float(sympy.Float(r.evalf(17), 15)) for r in sympy_distinct_roots(p)]
     assert [to_float(to_exact(r)) for r in real_roots(coefficients(p))] == theirs
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.lists(st.integers(-50, 50), min_size=2, max_size=8).filter(
+        lambda c: c[0] != 0 and any(c[1:])
+    ),
+    st.sampled_from([1, 2, 3, 4, 6, 10, 100]),
+    st.sampled_from([1, 7, 64, 1000]),
+)
+def test_variable_scale_is_sympys(coeffs: list[int], base: int, content: int) -> None:
+    # Reference: sympy's preprocess_roots, whose scale shows in how roots are written.
+    from sympy.polys.polyroots import preprocess_roots
+
+    scaled = tuple(content * c * base**i for i, c in enumerate(coeffs))  # roots times base
+    expected = int(preprocess_roots(sympy.Poly(list(scaled), X, domain=sympy.ZZ))[0])
+    assert gainset._variable_scale(scaled) == expected

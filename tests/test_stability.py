@@ -305,7 +305,7 @@ def test_fraction_free_first_column_against_the_textbook_recurrence(
             for j in range(width - 1)
         ]
         prev, cur = cur, [*nxt, sympy.Integer(0)]
-    parts, degenerate = _first_column_parts(columns)
+    parts, degenerate = _first_column_parts([[int(c) for c in p.all_coeffs()] for p in columns])
     assert degenerate == stop
     assert len(parts) == len(textbook)
     for (num, den), entry in zip(parts, textbook, strict=True):

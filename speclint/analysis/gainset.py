@@ -327,11 +327,30 @@ def _from_qq(x: object) -> Fraction:
 @functools.lru_cache(maxsize=256)
 def _variable_scale(context: tuple[int, ...]) -> int:
     """The factor c by which sympy substitutes x = c·y before finding the roots of
-    `context` (sympy.polys.polyroots.preprocess_roots); the roots are written c·root."""
-    from sympy.polys.polyroots import preprocess_roots
+    `context` (sympy.polys.polyroots.preprocess_roots and _integer_basis, followed step by
+    step on the integers); the roots are then written c·root."""
+    from sympy import divisors, integer_nthroot
 
-    coeff, _ = preprocess_roots(sympy.Poly(list(context), _X, domain=ZZ))
-    return int(coeff)
+    p = _normal(context)  # what clear_denoms and primitive leave (the sign does not matter)
+    n = len(p) - 1
+    monoms = [n - i for i, c in enumerate(p) if c]
+    sizes = [abs(c) for c in p if c]
+    if not sizes[0] < sizes[-1]:
+        return 1
+    # Read from the constant end: y = x/c makes the coefficients smaller.
+    sizes.reverse()
+    monoms = [monoms[0] - m for m in reversed(monoms)]
+    monoms, sizes = monoms[:-1], sizes[:-1]
+    if len(monoms) == 1:
+        root, exact = integer_nthroot(sizes[0], monoms[0])
+        return int(root) if exact else 1
+    g = 0
+    for c in sizes:
+        g = math.gcd(g, c)
+    for div in reversed(divisors(g)[1:]):
+        if all(c % div**m == 0 for m, c in zip(monoms, sizes, strict=True)):
+            return int(div)
+    return 1
 
 
 def _sympy_root(root: Root) -> Exact:

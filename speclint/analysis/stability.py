@@ -160,11 +160,17 @@ def routh_table(p: sympy.Poly) -> RouthTable:
 
 def is_hurwitz(p: sympy.Poly) -> bool:
     """True when every root of p(s) lies strictly in the left half plane (exact)."""
-    return _hurwitz([Fraction(int(c.p), int(c.q)) for c in _coefficients(p)])
+    coeffs = [Fraction(int(c.p), int(c.q)) for c in _coefficients(p)]
+    return _hurwitz(realroots.integer_coefficients(coeffs) if coeffs else [])
 
 
-def _hurwitz(coeffs: list[Fraction]) -> bool:
-    """is_hurwitz on rational coefficients, highest power first (leading zeros allowed)."""
+def _hurwitz(coeffs: list[int]) -> bool:
+    """is_hurwitz on integer coefficients, highest power first (leading zeros allowed).
+
+    The Routh test without fractions: row i of the table times Δ(i−1) is an integer row
+    F(i), F(i+1, j) = (F(i, 0)·F(i−1, j+1) − F(i−1, 0)·F(i, j+1)) / F(i−2, 0) exactly, and
+    the first column is F(1, 0), F(i, 0)/F(i−1, 0): all positive exactly when every
+    F(i, 0) = Δ(i) is (the Hurwitz criterion; see _first_column_parts)."""
     coeffs = list(itertools.dropwhile(lambda c: c == 0, coeffs))
     if not coeffs:
         return False
@@ -178,11 +184,13 @@ def _hurwitz(coeffs: list[Fraction]) -> bool:
     width = n // 2 + 1
     prev = _pad(coeffs[0::2], width)
     cur = _pad(coeffs[1::2], width)
-    for _ in range(n - 1):
+    divisor = 1  # F(i−2, 0), or 1 for the first two rows
+    for i in range(1, n):
         if cur[0] <= 0:
             return False
-        nxt = [prev[j + 1] - prev[0] * cur[j + 1] / cur[0] for j in range(width - 1)]
-        prev, cur = cur, [*nxt, Fraction(0)]
+        nxt = [(cur[0] * prev[j + 1] - prev[0] * cur[j + 1]) // divisor for j in range(width - 1)]
+        divisor = prev[0] if i >= 2 else 1
+        prev, cur = cur, [*nxt, 0]
     return cur[0] > 0
 
 
@@ -208,8 +216,8 @@ def _coefficients(p: sympy.Poly) -> list[sympy.Rational]:
     return coeffs
 
 
-def _pad(xs: list[Fraction], width: int) -> list[Fraction]:
-    return xs + [Fraction(0)] * (width - len(xs))
+def _pad(xs: list[int], width: int) -> list[int]:
+    return xs + [0] * (width - len(xs))
 
 
 def _build_rows(
@@ -383,8 +391,9 @@ class StableSet:
     choice) costs more than the whole set, writing the first column as expressions and
     building the nominal table with its root counts cost about as much as the set, and
     ``speclint check`` shows none of them. ``ends`` keeps what the boundaries need: each
-    end the loop sets with its irreducible polynomial; ``columns`` holds the coefficients
-    in s, and ``nominal_gain`` the gain of the nominal table (None: no table).
+    end the loop sets with its irreducible polynomial; ``k_coefficients`` the coefficients
+    in s (polynomials in k, highest powers first; ``columns`` as sympy polynomials), and
+    ``nominal_gain`` the gain of the nominal table (None: no table).
     """
 
     gains: GainSet
@@ -393,8 +402,20 @@ class StableSet:
     notes: tuple[str, ...] = ()
     unsupported: str | None = None
     ends: tuple[tuple[Exact, sympy.Poly], ...] = ()
-    columns: tuple[sympy.Poly, ...] = ()
+    k_coefficients: tuple[tuple[Fraction, ...], ...] = ()
     nominal_gain: Exact | None = None
+
+    @property
+    def columns(self) -> tuple[sympy.Poly, ...]:
+        """The coefficients of P(s, k) in s as polynomials in ``algebra.K``."""
+        return tuple(
+            sympy.Poly(
+                [sympy.Rational(c.numerator, c.denominator) for c in coeffs], K, domain=sympy.QQ
+            )
+            if coeffs
+            else sympy.Poly(0, K, domain=sympy.QQ)
+            for coeffs in self.k_coefficients
+        )
 
     @property
     def boundaries(self) -> tuple[Boundary, ...]:
@@ -447,26 +468,27 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         return _nowhere_stable(
             depends, "1 + L(∞) = 0 for every gain: the closed loop is improper (ill-posed)"
         )
-    columns = _coefficients_in_k(p, degree)
-    at_k = [_fractions(c) for c in columns]
-    nominal_stable, nominal_gain = _nominal_verdict(at_k, loop.nominal, depends)
+    at_k = _coefficients_in_k(p, degree)
+    columns = tuple(tuple(c) for c in at_k)
+    ints = _integer_columns(at_k)
+    nominal_stable, nominal_gain = _nominal_verdict(ints, loop.nominal, depends)
     if not depends:
         verdict = bool(nominal_stable)
         return StableSet(
             gains=domain if verdict else GainSet.empty(),
             nominal_stable=verdict,
             depends_on_gain=False,
-            columns=tuple(columns),
+            k_coefficients=columns,
             nominal_gain=nominal_gain,
         )
 
-    parts, degenerate = _first_column_parts(columns)
+    parts, degenerate = _first_column_parts(ints)
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
             nominal_stable=nominal_stable,
             depends_on_gain=True,
-            columns=tuple(columns),
+            k_coefficients=columns,
             nominal_gain=nominal_gain,
             notes=(
                 f"the first-column entry of row s^{degenerate} of the Routh table is zero for "
@@ -476,7 +498,7 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
 
     candidates = _candidates(parts)
     ends: list[Number | None] = [Fraction(0), *(c for c, _ in candidates), None]
-    verdicts = [_hurwitz_at(at_k, number_between(lo, hi)) for lo, hi in itertools.pairwise(ends)]
+    verdicts = [_hurwitz_at(ints, number_between(lo, hi)) for lo, hi in itertools.pairwise(ends)]
     # Only the ends of stable pieces become sympy numbers (a radical or a CRootOf costs
     # milliseconds to write down; most candidates separate two unstable pieces).
     pieces = [
@@ -495,7 +517,7 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
         nominal_stable=nominal_stable,
         depends_on_gain=True,
         ends=ends_set,
-        columns=tuple(columns),
+        k_coefficients=columns,
         nominal_gain=nominal_gain,
     )
 
@@ -504,21 +526,32 @@ def _exact_end(x: Number | None) -> Exact:
     return INF if x is None else to_exact(x)
 
 
-def _fractions(p: sympy.Poly) -> list[Fraction]:
-    """Rational coefficients of a univariate polynomial, highest power first."""
-    return [Fraction(int(c.numerator), int(c.denominator)) for c in p.rep.to_list()]
+def _integer_columns(at_k: list[list[Fraction]]) -> list[list[int]]:
+    """P(s, k) times a positive constant, with integer coefficients (the same roots)."""
+    den = 1
+    for coeffs in at_k:
+        for c in coeffs:
+            den = den * c.denominator // math.gcd(den, c.denominator)
+    return [[int(c * den) for c in coeffs] for coeffs in at_k]
 
 
-def _hurwitz_at(at_k: list[list[Fraction]], k: Fraction) -> bool:
-    """is_hurwitz of P(s, k), given P's coefficients in s as polynomials in k."""
-    return _hurwitz([_value_at(c, k) for c in at_k])
+def _hurwitz_at(ints: list[list[int]], k: Fraction) -> bool:
+    """is_hurwitz of P(s, k), given P's coefficients in s as integer polynomials in k."""
+    return _hurwitz(_values_at(ints, k))
 
 
-def _value_at(coeffs: list[Fraction], x: Fraction) -> Fraction:
-    acc = Fraction(0)
-    for c in coeffs:
-        acc = acc * x + c
-    return acc
+def _values_at(ints: list[list[int]], k: Fraction) -> list[int]:
+    """The coefficients at k = p/q times q^d, d the highest degree in k (same signs)."""
+    p, q = k.numerator, k.denominator
+    top = max(len(c) for c in ints) - 1
+    out = []
+    for coeffs in ints:
+        acc, power = 0, 1
+        for c in coeffs:
+            acc = acc * p + c * power  # homogeneous Horner: Σ c_i·p^(m−i)·q^i
+            power *= q
+        out.append(acc * q ** (top - len(coeffs) + 1) if coeffs else 0)
+    return out
 
 
 def _monic(factor: tuple[int, ...]) -> sympy.Poly:
@@ -544,17 +577,14 @@ def _nowhere_stable(depends: bool, note: str) -> StableSet:
     )
 
 
-def _coefficients_in_k(p: sympy.Poly, degree: int) -> list[sympy.Poly]:
-    """Coefficients of P in s as polynomials in K, highest power of s first."""
-    terms: list[dict[int, sympy.Rational]] = [{} for _ in range(degree + 1)]
+def _coefficients_in_k(p: sympy.Poly, degree: int) -> list[list[Fraction]]:
+    """Coefficients of P in s as polynomials in K (highest powers first; [] for zero),
+    highest power of s first."""
+    terms: list[dict[int, Fraction]] = [{} for _ in range(degree + 1)]
     i_s, i_k = p.gens.index(S), p.gens.index(K)
-    for monom, coeff in p.terms():
-        terms[degree - monom[i_s]][monom[i_k]] = coeff
-    out = []
-    for t in terms:
-        top = max(t, default=0)
-        out.append(sympy.Poly([t.get(j, 0) for j in range(top, -1, -1)], K, domain=sympy.QQ))
-    return out
+    for monom, c in p.as_dict(native=True).items():
+        terms[degree - monom[i_s]][monom[i_k]] = Fraction(int(c.numerator), int(c.denominator))
+    return [[t.get(j, Fraction(0)) for j in range(max(t), -1, -1)] if t else [] for t in terms]
 
 
 def _poly_at(columns: list[sympy.Poly], k: Exact) -> sympy.Poly:
@@ -562,17 +592,17 @@ def _poly_at(columns: list[sympy.Poly], k: Exact) -> sympy.Poly:
 
 
 def _nominal_verdict(
-    at_k: list[list[Fraction]], nominal: Fraction | None, depends: bool
+    ints: list[list[int]], nominal: Fraction | None, depends: bool
 ) -> tuple[bool | None, Exact | None]:
     """The exact verdict at the nominal gain, and that gain (for the Routh table)."""
     if depends and nominal is None:
         return None, None
     k = nominal if nominal is not None else Fraction(0)
-    if _value_at(at_k[0], k) == 0:
+    if _values_at(ints[:1], k)[0] == 0:
         # the degree drops: a closed-loop pole at s = ∞, the loop is ill-posed here
         return False, exact(k)
     # Hurwitz exactly when the table's root counts find every root in the left half plane.
-    return _hurwitz_at(at_k, k), exact(k)
+    return _hurwitz_at(ints, k), exact(k)
 
 
 def _symbolic_first_column(
@@ -599,7 +629,7 @@ def _symbolic_first_column(
 
 
 def _first_column_parts(
-    columns: list[sympy.Poly],
+    columns: list[list[int]],
 ) -> tuple[list[tuple[list[int], list[int]]], int | None]:
     """Numerator and denominator of each first-column entry over Q(k), in lowest terms up
     to a constant factor (integer coefficients, highest power first), and the power of the
@@ -612,13 +642,7 @@ def _first_column_parts(
     from sympy.polys.euclidtools import dup_inner_gcd
 
     n = len(columns) - 1
-    at_k = [_fractions(c) for c in columns]
-    den = 1
-    for coeffs in at_k:
-        for c in coeffs:
-            den = den * c.denominator // math.gcd(den, c.denominator)
-    # P(s, k) times a constant: integer coefficients, the same entries up to constants.
-    ints = [_strip([int(c * den) for c in coeffs]) for coeffs in at_k]
+    ints = [_strip(list(coeffs)) for coeffs in columns]
     width = n // 2 + 1
 
     def padded(xs: list[list[int]]) -> list[list[int]]:
