@@ -300,6 +300,8 @@ def _value(limit: _Limit) -> sympy.Expr:
         return INF
     num, den = limit.a.cancel(limit.b)
     if den.is_ground:
+        if num.is_ground:  # a number (every limit at the nominal gain): no expression to build
+            return sympy.QQ.to_sympy(num.LC / den.LC)
         return num.as_expr() / sympy.QQ.to_sympy(den.LC)
     return num.as_expr() / den.as_expr()
 
