@@ -97,8 +97,10 @@ class SteadyState:
     """Steady-state figures of the equivalent unity-feedback forward path Ge.
 
     ``type``, ``kp``, ``kv``, ``ka`` and the unit errors are at the nominal gain (exact:
-    Rational, 0 or oo); the ``*_expr`` fields are the same constants as expressions in the
-    gain symbol ``algebra.K``. The unit errors are final values of e = r − y for R = 1.
+    Rational, 0 or oo); ``kp_expr``, ``kv_expr``, ``ka_expr`` are the same constants as
+    expressions in the gain symbol ``algebra.K``, written when read (``generic_constants``
+    holds their limits; they are shown only for a loop with a gain, and an expression costs
+    more to write than the limit). The unit errors are final values of e = r − y for R = 1.
     When 1 + L·(H − 1) vanishes identically the output equals the reference exactly: Ge
     does not exist, ``type`` is reported as DEGENERATE_TYPE and every error is 0.
     """
@@ -107,12 +109,25 @@ class SteadyState:
     kp: sympy.Expr
     kv: sympy.Expr
     ka: sympy.Expr
-    kp_expr: sympy.Expr
-    kv_expr: sympy.Expr
-    ka_expr: sympy.Expr
     step_error: sympy.Expr
     ramp_error: sympy.Expr
     parabola_error: sympy.Expr
+    generic_constants: tuple[_Limit, _Limit, _Limit]
+
+    @property
+    def kp_expr(self) -> sympy.Expr:
+        """Kp as an expression in the gain."""
+        return _value(self.generic_constants[0])
+
+    @property
+    def kv_expr(self) -> sympy.Expr:
+        """Kv as an expression in the gain."""
+        return _value(self.generic_constants[1])
+
+    @property
+    def ka_expr(self) -> sympy.Expr:
+        """Ka as an expression in the gain."""
+        return _value(self.generic_constants[2])
 
 
 # -- series at s = 0 ------------------------------------------------------------------------
@@ -322,12 +337,14 @@ def steady_state(loop: LoopAlgebra) -> SteadyState:
         kp=_value(_limit(nominal.nge, nominal.dge, 0, z)),
         kv=_value(_limit(nominal.nge, nominal.dge, 1, z)),
         ka=_value(_limit(nominal.nge, nominal.dge, 2, z)),
-        kp_expr=_value(_limit(generic.nge, generic.dge, 0, z)),
-        kv_expr=_value(_limit(generic.nge, generic.dge, 1, z)),
-        ka_expr=_value(_limit(generic.nge, generic.dge, 2, z)),
         step_error=_value(_limit(nominal.dge, nominal.char, 0, z)),
         ramp_error=_value(_limit(nominal.dge, nominal.char, -1, z)),
         parabola_error=_value(_limit(nominal.dge, nominal.char, -2, z)),
+        generic_constants=(
+            _limit(generic.nge, generic.dge, 0, z),
+            _limit(generic.nge, generic.dge, 1, z),
+            _limit(generic.nge, generic.dge, 2, z),
+        ),
     )
 
 
