@@ -2,13 +2,17 @@
 
 Every set the analysis computes (the stable gains, the gains where a requirement holds,
 their intersections) is one of these. Ends are exact sympy numbers: rationals, real
-algebraic numbers (``CRootOf``, a root of a polynomial with rational coefficients), or
-``sympy.oo``. Comparisons between them are exact: sympy refines the isolating interval of
-an algebraic number until the order is decided, and two different algebraic numbers are
-never equal, so "an error exactly equal to its maximum" is decidable.
+algebraic numbers (a radical, or a ``CRootOf``: a root of a polynomial with rational
+coefficients), or ``sympy.oo``; the margins add Float ends, values found in floating
+point. Comparisons between them are exact: an algebraic number made here keeps its
+isolating interval, which narrows until the order is decided, and two different algebraic
+numbers are never equal, so "an error exactly equal to its maximum" is decidable. (A Float
+end against a radical compares as sympy does, at the Float's precision; see
+_float_against_form.)
 
 Floating point enters only in :meth:`GainSet.as_floats` and :func:`describe`, for
-display; they round to 15 significant digits (a double's faithful range).
+display; they round to 15 significant digits (a double's faithful range). Floating point
+also guides the search for roots (speclint.analysis.realroots), which exact signs decide.
 """
 
 from __future__ import annotations
@@ -26,7 +30,7 @@ from sympy.polys.domains import QQ, ZZ
 
 from speclint.analysis import realroots
 
-Exact: TypeAlias = sympy.Expr  # Rational, CRootOf, or +/-oo
+Exact: TypeAlias = sympy.Expr  # Rational, radical, CRootOf (or a multiple), Float, or +/-oo
 
 ZERO = sympy.Integer(0)
 INF = sympy.oo
