@@ -22,6 +22,7 @@ from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, poly
 from speclint.analysis.gainset import INF, ZERO, GainSet, Interval, to_float
 from speclint.analysis.stability import (
     EPS,
+    _first_column_parts,
     hidden_modes,
     is_hurwitz,
     routh_table,
@@ -268,6 +269,51 @@ def test_routh_counts_against_mpmath(coeffs: list[int], factors: list[sympy.Expr
     table = routh_table(p)
     assert (table.rhp, table.imaginary) == reference_counts(p)
     assert table.stable is is_hurwitz(p)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(
+        st.lists(st.integers(-4, 6), min_size=1, max_size=3).map(
+            lambda c: sympy.Poly(c, K, domain=sympy.QQ)
+        ),
+        min_size=2,
+        max_size=8,
+    ).filter(lambda cols: not cols[0].is_zero)
+)
+def test_fraction_free_first_column_against_the_textbook_recurrence(
+    columns: list[sympy.Poly],
+) -> None:
+    # Reference: the Routh recurrence as the textbooks write it, each entry reduced by
+    # sympy.cancel (Ogata, Modern Control Engineering, sec. 5-6, from memory); the
+    # fraction-free entries must be the same rational functions up to a constant factor,
+    # and stop at the same row when an entry vanishes for every gain.
+    n = len(columns) - 1
+    width = n // 2 + 1
+    coeffs = [c.as_expr() for c in columns]
+    prev = coeffs[0::2] + [sympy.Integer(0)] * (width - len(coeffs[0::2]))
+    cur = coeffs[1::2] + [sympy.Integer(0)] * (width - len(coeffs[1::2]))
+    textbook = [prev[0]]
+    stop = None
+    for power in range(n - 1, -1, -1):
+        if sympy.cancel(cur[0]) == 0:
+            stop = power
+            break
+        textbook.append(sympy.cancel(cur[0]))
+        nxt = [
+            sympy.cancel((cur[0] * prev[j + 1] - prev[0] * cur[j + 1]) / cur[0])
+            for j in range(width - 1)
+        ]
+        prev, cur = cur, [*nxt, sympy.Integer(0)]
+    parts, degenerate = _first_column_parts([[int(c) for c in p.all_coeffs()] for p in columns])
+    assert degenerate == stop
+    assert len(parts) == len(textbook)
+    for (num, den), entry in zip(parts, textbook, strict=True):
+        ratio = sympy.cancel(sympy.Poly(num, K).as_expr() / sympy.Poly(den, K).as_expr() / entry)
+        assert ratio.is_Rational and ratio != 0
+        textbook_num, textbook_den = sympy.fraction(sympy.cancel(entry))
+        assert sympy.Poly(num, K).degree() == sympy.Poly(textbook_num, K).degree()
+        assert sympy.Poly(den, K).degree() == sympy.Poly(textbook_den, K).degree()
 
 
 # ------------------------------------------------------------------ stable gain sets

@@ -2,26 +2,35 @@
 
 Every set the analysis computes (the stable gains, the gains where a requirement holds,
 their intersections) is one of these. Ends are exact sympy numbers: rationals, real
-algebraic numbers (``CRootOf``, a root of a polynomial with rational coefficients), or
-``sympy.oo``. Comparisons between them are exact: sympy refines the isolating interval of
-an algebraic number until the order is decided, and two different algebraic numbers are
-never equal, so "an error exactly equal to its maximum" is decidable.
+algebraic numbers (a radical, or a ``CRootOf``: a root of a polynomial with rational
+coefficients), or ``sympy.oo``; the margins add Float ends, values found in floating
+point. Comparisons between them are exact: an algebraic number made here keeps its
+isolating interval, which narrows until the order is decided, and two different algebraic
+numbers are never equal, so "an error exactly equal to its maximum" is decidable. (A Float
+end against a radical compares as sympy does, at the Float's precision; see
+_float_against_form.)
 
 Floating point enters only in :meth:`GainSet.as_floats` and :func:`describe`, for
-display; they round to 15 significant digits (a double's faithful range).
+display; they round to 15 significant digits (a double's faithful range). Floating point
+also guides the search for roots (speclint.analysis.realroots), which exact signs decide.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable
+import functools
+import math
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 from itertools import pairwise
 from typing import TypeAlias
 
 import sympy
+from sympy.polys.domains import QQ, ZZ
 
-Exact: TypeAlias = sympy.Expr  # Rational, CRootOf, or +/-oo
+from speclint.analysis import realroots
+
+Exact: TypeAlias = sympy.Expr  # Rational, radical, CRootOf (or a multiple), Float, or +/-oo
 
 ZERO = sympy.Integer(0)
 INF = sympy.oo
@@ -36,8 +45,389 @@ def exact(x: Fraction | int | sympy.Expr) -> Exact:
     return x
 
 
+# -- exact real numbers ---------------------------------------------------------------------
+#
+# The analysis finds the ends of gain sets as real roots of polynomials with rational
+# coefficients. It keeps each irrational root as a `Root`: an irreducible integer polynomial
+# and an isolating interval with rational ends, found by speclint.analysis.realroots
+# (floating point only suggests where to look; exact signs decide). Comparing two such
+# numbers narrows their intervals by exact bisection until they part; sympy's own
+# comparison of algebraic numbers, by evaluating them to growing precision, is far slower.
+# A root becomes a sympy number (a radical, or a CRootOf) only when it ends up as the end of
+# a set: the very number `sympy.Poly.real_roots` returns for it, so what is printed does
+# not depend on how it was found. The sympy number remembers its Root (`_KNOWN`), so later
+# comparisons of gain-set ends stay on the fast path.
+
+Number: TypeAlias = "Fraction | Root"
+
+_X = sympy.Symbol("x")  # the variable sympy writes CRootOf polynomials in
+_NEG_INF = sympy.S.NegativeInfinity
+# Exact bisection steps before a comparison hands over to sympy (two different algebraic
+# numbers always part; this only bounds the work on pathological inputs).
+_MAX_BISECTIONS = 4000
+_KNOWN_LIMIT = 50_000  # sympy numbers remembered at once; forgetting one only costs speed
+
+
+class _Family:
+    """The real roots of one irreducible integer polynomial of degree ≥ 2, ascending.
+
+    ``context`` is the polynomial (this one, or a product it divides) whose real roots
+    were asked for: sympy scales the variable by a factor it reads off that polynomial,
+    and the scale shows in how a root is written (``4*CRootOf(...)``).
+    """
+
+    __slots__ = ("context", "poly", "roots")
+
+    def __init__(self, poly: tuple[int, ...], context: tuple[int, ...]) -> None:
+        self.poly = poly
+        self.context = context
+        self.roots = [Root(self, i, lo, hi) for i, (lo, hi) in enumerate(_isolate(poly))]
+
+
+class Root:
+    """A real algebraic number of degree ≥ 2: the single root of ``family.poly`` in the
+    open interval (lo, hi), which narrows as comparisons need (its ends are never roots)."""
+
+    __slots__ = ("_exact", "_sign_lo", "family", "hi", "index", "lo")
+
+    def __init__(self, family: _Family, index: int, lo: Fraction, hi: Fraction) -> None:
+        self.family = family
+        self.index = index  # among the polynomial's real roots, ascending
+        self.lo = lo
+        self.hi = hi
+        self._sign_lo = realroots.value_sign(family.poly, lo)
+        self._exact: Exact | None = None
+
+    @property
+    def poly(self) -> tuple[int, ...]:
+        return self.family.poly
+
+    def narrow(self) -> None:
+        """Halve the isolating interval (exact signs at the midpoint)."""
+        mid = (self.lo + self.hi) / 2
+        if realroots.value_sign(self.family.poly, mid) == self._sign_lo:
+            self.lo = mid
+        else:
+            self.hi = mid
+
+    def exact(self) -> Exact:
+        """The sympy number for this root, as ``sympy.Poly.real_roots`` writes it."""
+        if self._exact is None:
+            self._exact = _sympy_root(self)
+            if len(_KNOWN) >= _KNOWN_LIMIT:
+                _KNOWN.clear()
+            _KNOWN[self._exact] = self
+        return self._exact
+
+
+_KNOWN: dict[Exact, Root] = {}
+
+
+def to_exact(x: Number) -> Exact:
+    """A number of the analysis as a sympy number (Rational, radical or CRootOf)."""
+    if isinstance(x, Fraction):
+        return sympy.Rational(x.numerator, x.denominator)
+    return x.exact()
+
+
+def _bounds(x: Number) -> tuple[Fraction, Fraction]:
+    if isinstance(x, Fraction):
+        return x, x
+    return x.lo, x.hi
+
+
+def _same_root(a: Root, b: Root) -> bool:
+    """Whether two roots of the same irreducible polynomial are one number: then it lies
+    in both intervals, so the polynomial changes sign over their common part."""
+    if a.family is b.family:
+        return a.index == b.index
+    if a.family.poly != b.family.poly:
+        return False  # distinct irreducible polynomials share no root
+    lo, hi = max(a.lo, b.lo), min(a.hi, b.hi)
+    if lo >= hi:
+        return False
+    p = a.family.poly
+    return realroots.value_sign(p, lo) != realroots.value_sign(p, hi)
+
+
+def number_less(a: Number, b: Number) -> bool:
+    """Exact a < b."""
+    decided = _number_less(a, b)
+    if decided is None:
+        return bool(less(to_exact(a), to_exact(b)))
+    return decided
+
+
+def _number_less(a: Number, b: Number) -> bool | None:
+    if isinstance(a, Fraction) and isinstance(b, Fraction):
+        return a < b
+    for _ in range(_MAX_BISECTIONS):
+        alo, ahi = _bounds(a)
+        blo, bhi = _bounds(b)
+        if ahi < blo:
+            return True
+        if bhi < alo:
+            return False
+        if a is b or (isinstance(a, Root) and isinstance(b, Root) and _same_root(a, b)):
+            return False
+        # A rational is never a root of an irreducible polynomial of degree ≥ 2, so
+        # narrowing the wider interval always makes progress.
+        if isinstance(a, Root) and (isinstance(b, Fraction) or ahi - alo >= bhi - blo):
+            a.narrow()
+        else:
+            assert isinstance(b, Root)
+            b.narrow()
+    return None
+
+
+def number_between(a: Number | None, b: Number | None) -> Fraction:
+    """A short rational strictly between a < b; None stands for -∞ (a) or +∞ (b)."""
+    if a is None:
+        return Fraction(0) if b is None else Fraction(math.floor(_bounds(b)[0]) - 1)
+    if b is None:
+        return Fraction(math.floor(_bounds(a)[1]) + 1)
+    decided = _number_less(a, b)  # True only once the two intervals have parted
+    if decided is None:
+        return _fraction(_sympy_between(to_exact(a), to_exact(b)))
+    if not decided:
+        raise ValueError("number_between needs a < b")
+    ahi, blo = _bounds(a)[1], _bounds(b)[0]
+    quarter = (blo - ahi) / 4
+    return _simplest(ahi + quarter, blo - quarter)
+
+
+def _fraction(x: Exact) -> Fraction:
+    return Fraction(int(x.p), int(x.q))
+
+
+def _simplest(lo: Fraction, hi: Fraction) -> Fraction:
+    """The rational with the smallest denominator in [lo, hi] (the shortest sample)."""
+    if lo <= 0 <= hi:
+        return Fraction(0)
+    if hi < 0:
+        return -_simplest(-hi, -lo)
+    parts: list[int] = []
+    while True:  # continued fraction of the two ends until they part
+        whole = lo.numerator // lo.denominator
+        if whole == lo or whole + 1 <= hi:
+            value = Fraction(whole if whole == lo else whole + 1)
+            break
+        parts.append(whole)
+        lo, hi = 1 / (hi - whole), 1 / (lo - whole)
+    for whole in reversed(parts):
+        value = whole + 1 / value
+    return value
+
+
+def as_number(x: Exact) -> Number | None:
+    """The analysis' form of a finite sympy number: a Fraction (a Float end counts as the
+    rational it stores), the Root it was made from, or None (a form this module did not
+    make: comparisons then go through sympy)."""
+    if x.is_Rational:
+        return Fraction(int(x.p), int(x.q))
+    if x.is_Float:
+        if not x.is_finite:
+            return None
+        return Fraction(float(x)) if x._prec <= 53 else _fraction(sympy.Rational(x))
+    return _KNOWN.get(x)
+
+
+def real_roots(coeffs: Sequence[Fraction]) -> list[Number]:
+    """Distinct real roots of a polynomial with rational coefficients (highest power
+    first), ascending: the numbers ``sympy.Poly.real_roots`` gives, found faster."""
+    p = _integer_poly(coeffs)
+    if len(p) < 2:
+        return []
+    context = tuple(p)
+    out: list[Number] = []
+    while p[-1] == 0:
+        p.pop()
+        if not out:
+            out.append(Fraction(0))
+    if len(p) >= 2:
+        for factor in irreducible_factors(p):
+            out.extend(factor_roots(factor, context))
+    return sorted(out, key=functools.cmp_to_key(_order))
+
+
+def _order(a: Number, b: Number) -> int:
+    if number_less(a, b):
+        return -1
+    return 1 if number_less(b, a) else 0
+
+
+def factor_roots(factor: tuple[int, ...], context: tuple[int, ...] | None = None) -> list[Number]:
+    """Real roots, ascending, of an irreducible, primitive integer polynomial with a
+    positive leading coefficient; ``context`` is the polynomial whose roots were asked for
+    (the factor itself when None: it decides how sympy writes them)."""
+    if len(factor) == 2:
+        return [Fraction(-factor[1], factor[0])]
+    return list(_Family(factor, factor if context is None else context).roots)
+
+
+def irreducible_factors(p: Sequence[int]) -> list[tuple[int, ...]]:
+    """The distinct irreducible factors of an integer polynomial with p(0) ≠ 0, each
+    primitive with a positive leading coefficient (degree ≤ 2 without sympy)."""
+    if len(p) == 2:
+        return [_normal(p)]
+    if len(p) == 3:
+        a, b, c = p
+        disc = b * b - 4 * a * c
+        if disc < 0:
+            return [_normal(p)]
+        r = math.isqrt(disc)
+        if r * r != disc:
+            return [_normal(p)]
+        # two rational roots (-b ± r)/(2a), each giving a linear factor q·x - p
+        found = {_normal([q.denominator, -q.numerator]) for q in _quadratic_roots(a, b, r)}
+        return sorted(found)
+    from sympy.polys.factortools import dup_factor_list
+
+    _, factors = dup_factor_list([int(c) for c in p], ZZ)
+    return [_normal([int(c) for c in f]) for f, _ in factors if len(f) > 1]
+
+
+def _quadratic_roots(a: int, b: int, r: int) -> tuple[Fraction, Fraction]:
+    return Fraction(-b - r, 2 * a), Fraction(-b + r, 2 * a)
+
+
+def _normal(p: Sequence[int]) -> tuple[int, ...]:
+    g = 0
+    for c in p:
+        g = math.gcd(g, c)
+    if p[0] < 0:
+        g = -g
+    return tuple(c // g for c in p)
+
+
+def _integer_poly(coeffs: Sequence[Fraction]) -> list[int]:
+    trimmed = list(coeffs)
+    while trimmed and trimmed[0] == 0:
+        trimmed.pop(0)
+    if not trimmed:
+        return []
+    return realroots.integer_coefficients(trimmed)
+
+
+def _isolate(p: tuple[int, ...]) -> list[tuple[Fraction, Fraction]]:
+    """Isolating intervals of every real root of the irreducible p (degree ≥ 2, so no
+    rational roots and p(0) ≠ 0), ascending."""
+    positive = realroots.isolate_positive(p)
+    mirrored = [c if (len(p) - 1 - i) % 2 == 0 else -c for i, c in enumerate(p)]
+    negative = realroots.isolate_positive(mirrored)
+    if positive is None or negative is None:
+        # The fast search gave up: sympy's exact isolation (continued fractions) instead.
+        from sympy.polys.rootisolation import dup_isolate_real_roots_sqf
+
+        found = dup_isolate_real_roots_sqf(list(p), ZZ)
+        return [(_from_qq(lo), _from_qq(hi)) for (lo, hi) in found]
+    return [(-hi, -lo) for lo, hi in reversed(negative)] + positive
+
+
+def _from_qq(x: object) -> Fraction:
+    return Fraction(int(x.numerator), int(x.denominator))  # type: ignore[attr-defined]
+
+
+@functools.lru_cache(maxsize=256)
+def _variable_scale(context: tuple[int, ...]) -> int:
+    """The factor c by which sympy substitutes x = c·y before finding the roots of
+    `context` (sympy.polys.polyroots.preprocess_roots and _integer_basis, followed step by
+    step on the integers); the roots are then written c·root."""
+    from sympy import divisors, integer_nthroot
+
+    p = _normal(context)  # what clear_denoms and primitive leave (the sign does not matter)
+    n = len(p) - 1
+    monoms = [n - i for i, c in enumerate(p) if c]
+    sizes = [abs(c) for c in p if c]
+    if not sizes[0] < sizes[-1]:
+        return 1
+    # Read from the constant end: y = x/c makes the coefficients smaller.
+    sizes.reverse()
+    monoms = [monoms[0] - m for m in reversed(monoms)]
+    monoms, sizes = monoms[:-1], sizes[:-1]
+    if len(monoms) == 1:
+        root, exact = integer_nthroot(sizes[0], monoms[0])
+        return int(root) if exact else 1
+    g = 0
+    for c in sizes:
+        g = math.gcd(g, c)
+    for div in reversed(divisors(g)[1:]):
+        if all(c % div**m == 0 for m, c in zip(monoms, sizes, strict=True)):
+            return int(div)
+    return 1
+
+
+def _sympy_root(root: Root) -> Exact:
+    """The number sympy's real_roots returns for this root (same form, same printing)."""
+    from sympy.polys import rootoftools
+    from sympy.polys.rootisolation import RealInterval
+
+    family = root.family
+    scale = _variable_scale(family.context)
+    n = len(family.poly) - 1
+    # p(c·y) with integer coefficients, made primitive: the factor sympy finds.
+    scaled = _normal([c * scale ** (n - i) for i, c in enumerate(family.poly)])
+    pure = sympy.PurePoly(list(scaled), _X, domain=ZZ)
+    trivial = rootoftools.CRootOf._roots_trivial(pure, True)
+    if trivial is not None:
+        base = trivial[root.index]
+    else:
+        cache = rootoftools._reals_cache
+        if pure not in cache:
+            # sympy's root isolation costs more than all the rest; hand it the intervals
+            # found here (of y = x/c), in its own form.
+            rep = pure.rep.to_list()
+            cache[pure] = [
+                RealInterval(
+                    (_qq(r.lo / scale), _qq(r.hi / scale)),
+                    rep,
+                    ZZ,
+                )
+                for r in family.roots
+            ]
+        base = rootoftools.CRootOf._new(pure, root.index)
+    return sympy.Integer(scale) * base
+
+
+def _qq(x: Fraction) -> object:
+    return QQ(x.numerator, x.denominator)
+
+
+# -- comparisons of sympy numbers ---------------------------------------------------------
+
+
 def less(a: Exact, b: Exact) -> bool:
     """Exact a < b for the numbers a gain set holds."""
+    if a is b:
+        return False
+    if a is INF or b is _NEG_INF:
+        return False
+    if b is INF or a is _NEG_INF:
+        return True
+    if a.is_Rational and b.is_Rational:
+        return bool(a.p * b.q < b.p * a.q)  # denominators are positive
+    na, nb = as_number(a), as_number(b)
+    if na is not None and nb is not None and not _float_against_form(a, na, b, nb):
+        decided = _number_less(na, nb)
+        if decided is not None:
+            return decided
+    return _sympy_less(a, b)
+
+
+def _float_against_form(a: Exact, na: Number, b: Exact, nb: Number) -> bool:
+    """Whether a Float end meets an algebraic number written as a radical or a multiple of
+    a CRootOf. sympy compares those at the Float's own precision (the other side rounded
+    to it), not exactly; a Float end is a 15-digit value from floating point, and that is
+    the comparison its sets have always been built with, so it stays."""
+    return (a.is_Float and isinstance(nb, Root) and not isinstance(b, sympy.CRootOf)) or (
+        b.is_Float and isinstance(na, Root) and not isinstance(a, sympy.CRootOf)
+    )
+
+
+@functools.lru_cache(maxsize=4096)
+def _sympy_less(a: Exact, b: Exact) -> bool:
+    """a < b for numbers made elsewhere (a CRootOf from sympy itself), or a Float end
+    against a radical; remembered, as the same pairs meet again in every set operation."""
     if a == b:
         return False
     if a is INF or b == -INF:
@@ -115,6 +505,18 @@ def _compare_by_intervals(a: Exact, b: Exact) -> bool | None:
 
 def rational_between(a: Exact, b: Exact) -> sympy.Rational:
     """A rational strictly between a < b (either may be infinite)."""
+    na = None if a is _NEG_INF else as_number(a)
+    nb = None if b is INF else as_number(b)
+    if (na is None and a is not _NEG_INF) or (nb is None and b is not INF):
+        return _sympy_between(a, b)
+    if na is not None and nb is not None and _float_against_form(a, na, b, nb):
+        return _sympy_between(a, b)
+    q = number_between(na, nb)
+    return sympy.Rational(q.numerator, q.denominator)
+
+
+def _sympy_between(a: Exact, b: Exact) -> sympy.Rational:
+    """rational_between for numbers made elsewhere."""
     if a == -INF and b is INF:
         return sympy.Integer(0)
     if a == -INF:
@@ -216,6 +618,12 @@ class GainSet:
         return any(iv.contains(x) for iv in self.intervals)
 
     def intersect(self, other: GainSet) -> GainSet:
+        # The whole line leaves every piece of the other set as it is (the general loop
+        # below would rebuild each one unchanged).
+        if self._is_everything():
+            return GainSet.of(other.intervals)
+        if other._is_everything():
+            return GainSet.of(self.intervals)
         out: list[Interval] = []
         for a in self.intervals:
             for b in other.intervals:
@@ -225,6 +633,13 @@ class GainSet:
                 if not iv.is_empty():
                     out.append(iv)
         return GainSet.of(out)
+
+    def _is_everything(self) -> bool:
+        return (
+            len(self.intervals) == 1
+            and self.intervals[0].lo is _NEG_INF
+            and self.intervals[0].hi is INF
+        )
 
     def union(self, other: GainSet) -> GainSet:
         return GainSet.of(self.intervals + other.intervals)
@@ -273,12 +688,31 @@ def _min_end(a: Exact, ac: bool, b: Exact, bc: bool) -> tuple[Exact, bool]:
     return (a, ac) if less(a, b) else (b, bc)
 
 
+@functools.lru_cache(maxsize=4096)
 def to_float(x: Exact) -> float:
+    """x to 15 significant digits (remembered: an end is written in many messages)."""
     if x is INF:
         return float("inf")
     if x == -INF:
         return float("-inf")
+    root = _KNOWN.get(x)
+    if root is not None:
+        return _float_of(root)
     return float(sympy.Float(x.evalf(17), 15))
+
+
+def _float_of(root: Root) -> float:
+    """What to_float gives for a root's sympy number: its value rounded to nearest at 60 bits
+    (evalf to 17 digits), then at 53 (15 digits). Found exactly, by narrowing the root's
+    interval until both ends round alike at 60 bits, instead of by sympy's refinement of
+    a CRootOf interval (a millisecond each)."""
+    from mpmath.libmp import from_rational, mpf_pos, to_float  # type: ignore[import-untyped]
+
+    while True:
+        lo = from_rational(root.lo.numerator, root.lo.denominator, 60, "n")
+        if lo == from_rational(root.hi.numerator, root.hi.denominator, 60, "n"):
+            return float(to_float(mpf_pos(lo, 53, "n")))
+        root.narrow()
 
 
 def format_number(x: Exact, digits: int = 6) -> str:
@@ -310,22 +744,22 @@ def where_sign(poly: sympy.Poly, positive: bool, closed: bool) -> GainSet:
     themselves included when `closed`. `poly` is univariate with rational coefficients."""
     if poly.is_zero:
         return GainSet.of([Interval(-INF, INF)]) if closed else GainSet.empty()
-    roots = _distinct_real_roots(poly)
-    ends = [-INF, *roots, INF]
+    coeffs = [_from_qq(c) for c in poly.rep.to_list()]
+    roots = real_roots(coeffs)
+    p = _integer_poly(coeffs)  # a positive multiple: the same signs
+    ends: list[Number | None] = [None, *roots, None]
     pieces: list[Interval] = []
     for lo, hi in pairwise(ends):
-        value = poly.eval(rational_between(lo, hi))
-        if (value > 0) == positive:
-            pieces.append(Interval(lo, hi, closed and lo != -INF, closed and hi is not INF))
+        sample = number_between(lo, hi)
+        if (realroots.value_sign(p, sample) > 0) == positive:
+            pieces.append(
+                Interval(
+                    -INF if lo is None else to_exact(lo),
+                    INF if hi is None else to_exact(hi),
+                    closed and lo is not None,
+                    closed and hi is not None,
+                )
+            )
     if closed:
-        pieces.extend(Interval(r, r, True, True) for r in roots)
+        pieces.extend(Interval(to_exact(r), to_exact(r), True, True) for r in roots)
     return GainSet.of(pieces)
-
-
-def _distinct_real_roots(poly: sympy.Poly) -> list[Exact]:
-    """Distinct real roots, sorted, exact (rational roots come out as Rationals)."""
-    roots: list[Exact] = []
-    for r in poly.real_roots(multiple=True):
-        if not roots or roots[-1] != r:
-            roots.append(r)
-    return roots

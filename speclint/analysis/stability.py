@@ -54,23 +54,31 @@ from __future__ import annotations
 
 import functools
 import itertools
+import math
 from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any, Literal
 
 import sympy
+from sympy.polys.domains import ZZ
 
-from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, characteristic, product
+from speclint.analysis import realroots
+from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, characteristic
 from speclint.analysis.gainset import (
     INF,
     ZERO,
     Exact,
     GainSet,
     Interval,
+    Number,
     exact,
+    factor_roots,
     format_number,
+    irreducible_factors,
     less,
-    rational_between,
+    number_between,
+    number_less,
+    to_exact,
 )
 
 EPS = sympy.Symbol("ε", positive=True)
@@ -153,6 +161,17 @@ def routh_table(p: sympy.Poly) -> RouthTable:
 def is_hurwitz(p: sympy.Poly) -> bool:
     """True when every root of p(s) lies strictly in the left half plane (exact)."""
     coeffs = [Fraction(int(c.p), int(c.q)) for c in _coefficients(p)]
+    return _hurwitz(realroots.integer_coefficients(coeffs) if coeffs else [])
+
+
+def _hurwitz(coeffs: list[int]) -> bool:
+    """is_hurwitz on integer coefficients, highest power first (leading zeros allowed).
+
+    The Routh test without fractions: row i of the table times Δ(i−1) is an integer row
+    F(i), F(i+1, j) = (F(i, 0)·F(i−1, j+1) − F(i−1, 0)·F(i, j+1)) / F(i−2, 0) exactly, and
+    the first column is F(1, 0), F(i, 0)/F(i−1, 0): all positive exactly when every
+    F(i, 0) = Δ(i) is (the Hurwitz criterion; see _first_column_parts)."""
+    coeffs = list(itertools.dropwhile(lambda c: c == 0, coeffs))
     if not coeffs:
         return False
     if coeffs[0] < 0:
@@ -165,11 +184,13 @@ def is_hurwitz(p: sympy.Poly) -> bool:
     width = n // 2 + 1
     prev = _pad(coeffs[0::2], width)
     cur = _pad(coeffs[1::2], width)
-    for _ in range(n - 1):
+    divisor = 1  # F(i−2, 0), or 1 for the first two rows
+    for i in range(1, n):
         if cur[0] <= 0:
             return False
-        nxt = [prev[j + 1] - prev[0] * cur[j + 1] / cur[0] for j in range(width - 1)]
-        prev, cur = cur, [*nxt, Fraction(0)]
+        nxt = [(cur[0] * prev[j + 1] - prev[0] * cur[j + 1]) // divisor for j in range(width - 1)]
+        divisor = prev[0] if i >= 2 else 1
+        prev, cur = cur, [*nxt, 0]
     return cur[0] > 0
 
 
@@ -195,8 +216,8 @@ def _coefficients(p: sympy.Poly) -> list[sympy.Rational]:
     return coeffs
 
 
-def _pad(xs: list[Fraction], width: int) -> list[Fraction]:
-    return xs + [Fraction(0)] * (width - len(xs))
+def _pad(xs: list[int], width: int) -> list[int]:
+    return xs + [0] * (width - len(xs))
 
 
 def _build_rows(
@@ -365,26 +386,57 @@ class StableSet:
     ``unsupported`` says why the set could not be computed; ``gains`` is then empty and
     must not be read as "unstable".
 
-    ``boundaries`` are classified when read, not when the set is computed: finding each
-    crossing frequency ω0 (resultants, a 50-digit choice) costs more than the whole set,
-    and ``speclint check`` never shows them. ``ends`` keeps what that needs: each end the
-    loop sets with its irreducible polynomial, and ``columns`` the coefficients in s.
+    ``boundaries``, ``first_column`` and ``nominal_table`` are worked out when read, not
+    when the set is computed: finding each crossing frequency ω0 (resultants, a 50-digit
+    choice) costs more than the whole set, writing the first column as expressions and
+    building the nominal table with its root counts cost about as much as the set, and
+    ``speclint check`` shows none of them. ``ends`` keeps what the boundaries need: each
+    end the loop sets with its irreducible polynomial; ``k_coefficients`` the coefficients
+    in s (polynomials in k, highest powers first; ``columns`` as sympy polynomials), and
+    ``nominal_gain`` the gain of the nominal table (None: no table).
     """
 
     gains: GainSet
     nominal_stable: bool | None
-    nominal_table: RouthTable | None
     depends_on_gain: bool
-    first_column: tuple[sympy.Expr, ...] = ()
     notes: tuple[str, ...] = ()
     unsupported: str | None = None
     ends: tuple[tuple[Exact, sympy.Poly], ...] = ()
-    columns: tuple[sympy.Poly, ...] = ()
+    k_coefficients: tuple[tuple[Fraction, ...], ...] = ()
+    nominal_gain: Exact | None = None
+
+    @property
+    def columns(self) -> tuple[sympy.Poly, ...]:
+        """The coefficients of P(s, k) in s as polynomials in ``algebra.K``."""
+        return tuple(
+            sympy.Poly(
+                [sympy.Rational(c.numerator, c.denominator) for c in coeffs], K, domain=sympy.QQ
+            )
+            if coeffs
+            else sympy.Poly(0, K, domain=sympy.QQ)
+            for coeffs in self.k_coefficients
+        )
 
     @property
     def boundaries(self) -> tuple[Boundary, ...]:
         """How a root crosses at each end of the stable intervals that the loop sets."""
         return tuple(_classify(gain, factor, list(self.columns)) for gain, factor in self.ends)
+
+    @property
+    def first_column(self) -> tuple[sympy.Expr, ...]:
+        """The Routh first-column entries as rational functions of ``algebra.K``."""
+        if not self.depends_on_gain or not self.columns:
+            return ()
+        entries, _ = _symbolic_first_column(list(self.columns))
+        return tuple(f.as_expr() for f in entries)
+
+    @property
+    def nominal_table(self) -> RouthTable | None:
+        """The Routh table at the nominal gain (for a loop without gain: its only one)."""
+        if self.nominal_gain is None:
+            return None
+        at_nominal = _poly_at(list(self.columns), self.nominal_gain)
+        return None if at_nominal.is_zero else routh_table(at_nominal)
 
 
 def stable_gains(loop: LoopAlgebra) -> StableSet:
@@ -408,64 +460,102 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
             f"analysis (at most {MAX_DEGREE})",
         )
     blocks = (loop.controller, loop.plant, loop.feedback)
-    dens = product(*(Ratio(b.den, sympy.Poly(1, S, K, domain=sympy.QQ)) for b in blocks)).num
-    nums = product(*(Ratio(b.num, sympy.Poly(1, S, K, domain=sympy.QQ)) for b in blocks)).num
-    if degree < max(dens.degree(S), nums.degree(S)):
+    # Degrees in s of the products of the denominators and of the numerators: over a field
+    # the degrees of factors add (every block polynomial is non-zero).
+    dens = sum(int(b.den.degree(S)) for b in blocks)
+    nums = sum(int(b.num.degree(S)) for b in blocks)
+    if degree < max(dens, nums):
         return _nowhere_stable(
             depends, "1 + L(∞) = 0 for every gain: the closed loop is improper (ill-posed)"
         )
-    columns = _coefficients_in_k(p, degree)
-    nominal_stable, nominal_table = _nominal_verdict(columns, loop.nominal, depends)
+    at_k = _coefficients_in_k(p, degree)
+    columns = tuple(tuple(c) for c in at_k)
+    ints = _integer_columns(at_k)
+    nominal_stable, nominal_gain = _nominal_verdict(ints, loop.nominal, depends)
     if not depends:
         verdict = bool(nominal_stable)
         return StableSet(
             gains=domain if verdict else GainSet.empty(),
             nominal_stable=verdict,
-            nominal_table=nominal_table,
             depends_on_gain=False,
+            k_coefficients=columns,
+            nominal_gain=nominal_gain,
         )
 
-    first_column, degenerate = _symbolic_first_column(columns)
-    column_exprs = tuple(f.as_expr() for f in first_column)
+    parts, degenerate = _first_column_parts(ints)
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
             nominal_stable=nominal_stable,
-            nominal_table=nominal_table,
             depends_on_gain=True,
-            first_column=column_exprs,
+            k_coefficients=columns,
+            nominal_gain=nominal_gain,
             notes=(
                 f"the first-column entry of row s^{degenerate} of the Routh table is zero for "
                 "every gain: no gain makes the loop stable",
             ),
         )
 
-    candidates = _candidates(first_column)
-    ends: list[Exact] = [ZERO, *(c for c, _ in candidates), INF]
-    verdicts = [
-        is_hurwitz(_poly_at(columns, rational_between(lo, hi)))
-        for lo, hi in itertools.pairwise(ends)
-    ]
+    candidates = _candidates(parts)
+    ends: list[Number | None] = [Fraction(0), *(c for c, _ in candidates), None]
+    verdicts = [_hurwitz_at(ints, number_between(lo, hi)) for lo, hi in itertools.pairwise(ends)]
+    # Only the ends of stable pieces become sympy numbers (a radical or a CRootOf costs
+    # milliseconds to write down; most candidates separate two unstable pieces).
     pieces = [
-        Interval(lo, hi)
+        Interval(_exact_end(lo), _exact_end(hi))
         for (lo, hi), ok in zip(itertools.pairwise(ends), verdicts, strict=True)
         if ok
     ]
     gains = GainSet.of(pieces).intersect(domain)
     ends_set = tuple(
-        (gain, factor)
+        (exact_gain, _monic(factor))
         for i, (gain, factor) in enumerate(candidates)
-        if (verdicts[i] or verdicts[i + 1]) and domain.contains(gain)
+        if (verdicts[i] or verdicts[i + 1]) and domain.contains(exact_gain := to_exact(gain))
     )
     return StableSet(
         gains=gains,
         nominal_stable=nominal_stable,
-        nominal_table=nominal_table,
         depends_on_gain=True,
-        first_column=column_exprs,
         ends=ends_set,
-        columns=tuple(columns),
+        k_coefficients=columns,
+        nominal_gain=nominal_gain,
     )
+
+
+def _exact_end(x: Number | None) -> Exact:
+    return INF if x is None else to_exact(x)
+
+
+def _integer_columns(at_k: list[list[Fraction]]) -> list[list[int]]:
+    """P(s, k) times a positive constant, with integer coefficients (the same roots)."""
+    den = 1
+    for coeffs in at_k:
+        for c in coeffs:
+            den = den * c.denominator // math.gcd(den, c.denominator)
+    return [[int(c * den) for c in coeffs] for coeffs in at_k]
+
+
+def _hurwitz_at(ints: list[list[int]], k: Fraction) -> bool:
+    """is_hurwitz of P(s, k), given P's coefficients in s as integer polynomials in k."""
+    return _hurwitz(_values_at(ints, k))
+
+
+def _values_at(ints: list[list[int]], k: Fraction) -> list[int]:
+    """The coefficients at k = p/q times q^d, d the highest degree in k (same signs)."""
+    p, q = k.numerator, k.denominator
+    top = max(len(c) for c in ints) - 1
+    out = []
+    for coeffs in ints:
+        acc, power = 0, 1
+        for c in coeffs:
+            acc = acc * p + c * power  # homogeneous Horner: Σ c_i·p^(m−i)·q^i
+            power *= q
+        out.append(acc * q ** (top - len(coeffs) + 1) if coeffs else 0)
+    return out
+
+
+def _monic(factor: tuple[int, ...]) -> sympy.Poly:
+    return sympy.Poly(list(factor), K, domain=sympy.QQ).monic()
 
 
 def _unsupported(depends: bool, why: str) -> StableSet:
@@ -473,7 +563,6 @@ def _unsupported(depends: bool, why: str) -> StableSet:
     return StableSet(
         gains=GainSet.empty(),
         nominal_stable=None,
-        nominal_table=None,
         depends_on_gain=depends,
         unsupported=why,
     )
@@ -483,23 +572,19 @@ def _nowhere_stable(depends: bool, note: str) -> StableSet:
     return StableSet(
         gains=GainSet.empty(),
         nominal_stable=False,
-        nominal_table=None,
         depends_on_gain=depends,
         notes=(note,),
     )
 
 
-def _coefficients_in_k(p: sympy.Poly, degree: int) -> list[sympy.Poly]:
-    """Coefficients of P in s as polynomials in K, highest power of s first."""
-    terms: list[dict[int, sympy.Rational]] = [{} for _ in range(degree + 1)]
+def _coefficients_in_k(p: sympy.Poly, degree: int) -> list[list[Fraction]]:
+    """Coefficients of P in s as polynomials in K (highest powers first; [] for zero),
+    highest power of s first."""
+    terms: list[dict[int, Fraction]] = [{} for _ in range(degree + 1)]
     i_s, i_k = p.gens.index(S), p.gens.index(K)
-    for monom, coeff in p.terms():
-        terms[degree - monom[i_s]][monom[i_k]] = coeff
-    out = []
-    for t in terms:
-        top = max(t, default=0)
-        out.append(sympy.Poly([t.get(j, 0) for j in range(top, -1, -1)], K, domain=sympy.QQ))
-    return out
+    for monom, c in p.as_dict(native=True).items():
+        terms[degree - monom[i_s]][monom[i_k]] = Fraction(int(c.numerator), int(c.denominator))
+    return [[t.get(j, Fraction(0)) for j in range(max(t), -1, -1)] if t else [] for t in terms]
 
 
 def _poly_at(columns: list[sympy.Poly], k: Exact) -> sympy.Poly:
@@ -507,17 +592,17 @@ def _poly_at(columns: list[sympy.Poly], k: Exact) -> sympy.Poly:
 
 
 def _nominal_verdict(
-    columns: list[sympy.Poly], nominal: Fraction | None, depends: bool
-) -> tuple[bool | None, RouthTable | None]:
+    ints: list[list[int]], nominal: Fraction | None, depends: bool
+) -> tuple[bool | None, Exact | None]:
+    """The exact verdict at the nominal gain, and that gain (for the Routh table)."""
     if depends and nominal is None:
         return None, None
-    k = exact(nominal) if nominal is not None else ZERO
-    if columns[0].eval(k) == 0:
+    k = nominal if nominal is not None else Fraction(0)
+    if _values_at(ints[:1], k)[0] == 0:
         # the degree drops: a closed-loop pole at s = ∞, the loop is ill-posed here
-        pn = _poly_at(columns, k)
-        return False, (routh_table(pn) if not pn.is_zero else None)
-    table = routh_table(_poly_at(columns, k))
-    return table.stable, table
+        return False, exact(k)
+    # Hurwitz exactly when the table's root counts find every root in the left half plane.
+    return _hurwitz_at(ints, k), exact(k)
 
 
 def _symbolic_first_column(
@@ -543,29 +628,87 @@ def _symbolic_first_column(
     return column, None
 
 
-def _candidates(first_column: list[Any]) -> list[tuple[Exact, sympy.Poly]]:
-    """Positive real roots of every numerator and denominator factor, sorted, with factor."""
-    factors: dict[tuple[object, ...], sympy.Poly] = {}
-    for f in first_column:
-        for part in (f.numer, f.denom):
-            poly = sympy.Poly.from_dict(dict(part) or {(0,): 0}, K, domain=sympy.QQ)
-            if poly.degree() <= 0:
-                continue
-            for factor, _ in poly.factor_list()[1]:
-                monic = factor.monic()
-                factors[tuple(monic.all_coeffs())] = monic
-    found: list[tuple[Exact, sympy.Poly]] = []
-    for factor in factors.values():
-        for root in factor.real_roots(multiple=True):
-            if less(ZERO, root):
-                found.append((root, factor))
+def _first_column_parts(
+    columns: list[list[int]],
+) -> tuple[list[tuple[list[int], list[int]]], int | None]:
+    """Numerator and denominator of each first-column entry over Q(k), in lowest terms up
+    to a constant factor (integer coefficients, highest power first), and the power of the
+    row whose entry is ≡ 0, if any. Fraction-free: row i of the table times the Hurwitz
+    determinant Δ(i−1) is a polynomial F(i) (a minor of the Hurwitz matrix), with
+    F(i+1, j) = (F(i, 0)·F(i−1, j+1) − F(i−1, 0)·F(i, j+1)) / F(i−2, 0) an exact division
+    and F(i, 0) = Δ(i); so the entries are F(0, 0), F(1, 0) and Δ(i)/Δ(i−1) (Gantmacher,
+    The Theory of Matrices, vol. 2, ch. XV: the Routh scheme and the Hurwitz minors)."""
+    from sympy.polys.densearith import dup_exquo, dup_mul, dup_sub
+    from sympy.polys.euclidtools import dup_inner_gcd
+
+    n = len(columns) - 1
+    ints = [_strip(list(coeffs)) for coeffs in columns]
+    width = n // 2 + 1
+
+    def padded(xs: list[list[int]]) -> list[list[int]]:
+        return xs + [[] for _ in range(width - len(xs))]
+
+    prev, cur = padded(ints[0::2]), padded(ints[1::2])
+    parts = [(prev[0], [1])]
+    divisor: list[int] = [1]  # F(i−2, 0), or 1 for the first two rows
+    for i in range(1, n + 1):
+        if not cur[0]:
+            return parts, n - i
+        if i == 1:
+            parts.append((cur[0], [1]))
+        else:
+            _, num, den_part = dup_inner_gcd(cur[0], prev[0], ZZ)
+            parts.append((num, den_part))
+        if i == n:
+            break
+        nxt = [
+            dup_exquo(
+                dup_sub(dup_mul(cur[0], prev[j + 1], ZZ), dup_mul(prev[0], cur[j + 1], ZZ), ZZ),
+                divisor,
+                ZZ,
+            )
+            for j in range(width - 1)
+        ]
+        divisor = prev[0] if i >= 2 else [1]
+        prev, cur = cur, [*nxt, []]
+    return parts, None
+
+
+def _strip(p: list[int]) -> list[int]:
+    while p and p[0] == 0:
+        p = p[1:]
+    return p
+
+
+def _candidates(parts: list[tuple[list[int], list[int]]]) -> list[tuple[Number, tuple[int, ...]]]:
+    """Positive real roots of every numerator and denominator factor, sorted, each with its
+    irreducible factor (integer coefficients, highest power first)."""
+    factors: dict[tuple[int, ...], None] = {}
+    seen: set[tuple[int, ...]] = set()
+    for part in (q for pair in parts for q in pair):
+        ints = _strip([int(c) for c in part])
+        while len(ints) >= 2 and ints[-1] == 0:
+            ints.pop()  # the root k = 0 is not a candidate
+        key = tuple(ints)
+        if len(ints) < 2 or key in seen:
+            continue
+        seen.add(key)
+        if realroots.sign_variations(ints) == 0:
+            continue  # no positive root (Descartes' rule of signs): nothing to factor
+        factors.update(dict.fromkeys(irreducible_factors(ints)))
+    found: list[tuple[Number, tuple[int, ...]]] = []
+    for factor in factors:
+        found.extend((root, factor) for root in factor_roots(factor) if number_less(_ZERO, root))
     return sorted(found, key=functools.cmp_to_key(_compare))
 
 
-def _compare(a: tuple[Exact, sympy.Poly], b: tuple[Exact, sympy.Poly]) -> int:
-    if a[0] == b[0]:
-        return 0
-    return -1 if less(a[0], b[0]) else 1
+_ZERO = Fraction(0)
+
+
+def _compare(a: tuple[Number, tuple[int, ...]], b: tuple[Number, tuple[int, ...]]) -> int:
+    if number_less(a[0], b[0]):
+        return -1
+    return 1 if number_less(b[0], a[0]) else 0
 
 
 def _classify(gain: Exact, factor: sympy.Poly, columns: list[sympy.Poly]) -> Boundary:
@@ -680,8 +823,8 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
     found: list[HiddenMode] = []
     for pole_name, pole_block in blocks:
         for zero_name, zero_block in blocks:
-            common = pole_block.den.gcd(zero_block.num)
-            if common.total_degree() <= 0:
+            common = _common_in_s(pole_block.den, zero_block.num)
+            if common is None or common.total_degree() <= 0:
                 continue
             for factor, multiplicity in common.factor_list()[1]:
                 if factor.degree(K) > 0 or factor.degree(S) <= 0:
@@ -692,6 +835,34 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
                 unstable = routh_table(in_s).rhp > 0
                 found.append(HiddenMode(in_s, zero_name, pole_name, multiplicity, unstable))
     return found
+
+
+_S_RING, _ = sympy.ring([S], sympy.QQ)
+
+
+def _common_in_s(a: sympy.Poly, b: sympy.Poly) -> sympy.Poly | None:
+    """The factors free of the gain common to a and b, with their multiplicities (as a
+    polynomial in (S, K)); None when there is none. Only those are reported, and a factor
+    f(s) divides a(s, k) = Σ a_j(s)·k^j exactly when it divides every a_j: so this is the
+    gcd of all those coefficients over Q[s], one-variable gcds instead of a two-variable
+    one. Polynomials in other generators take the general gcd."""
+    if a.gens != (S, K) or b.gens != (S, K):
+        return a.gcd(b)
+    if (a.is_ground and not a.is_zero) or (b.is_ground and not b.is_zero):
+        return None  # a non-zero constant shares no factor
+    parts: dict[tuple[int, int], dict[tuple[int], Any]] = {}
+    for which, p in enumerate((a, b)):
+        for (i, j), c in p.as_dict(native=True).items():
+            parts.setdefault((which, j), {})[(i,)] = c
+    g = None
+    for terms in parts.values():
+        element = _S_RING.from_dict(terms)
+        g = element if g is None else g.gcd(element)
+        if g.is_ground:
+            return None
+    if g is None:
+        return None
+    return sympy.Poly.from_dict({(i, 0): c for (i,), c in g.items()}, S, K, domain=sympy.QQ)
 
 
 def _roots_text(factor: sympy.Poly, multiplicity: int) -> str:

@@ -65,15 +65,22 @@ from typing import Any
 
 import sympy
 
+from speclint.analysis import realroots
 from speclint.analysis.algebra import K, LoopAlgebra, S
 from speclint.analysis.gainset import (
     INF,
     ZERO,
     GainSet,
     Interval,
+    Number,
     exact,
+    factor_roots,
     format_number,
+    irreducible_factors,
     less,
+    number_less,
+    real_roots,
+    to_exact,
     where_sign,
 )
 
@@ -90,8 +97,10 @@ class SteadyState:
     """Steady-state figures of the equivalent unity-feedback forward path Ge.
 
     ``type``, ``kp``, ``kv``, ``ka`` and the unit errors are at the nominal gain (exact:
-    Rational, 0 or oo); the ``*_expr`` fields are the same constants as expressions in the
-    gain symbol ``algebra.K``. The unit errors are final values of e = r − y for R = 1.
+    Rational, 0 or oo); ``kp_expr``, ``kv_expr``, ``ka_expr`` are the same constants as
+    expressions in the gain symbol ``algebra.K``, written when read (``generic_constants``
+    holds their limits; they are shown only for a loop with a gain, and an expression costs
+    more to write than the limit). The unit errors are final values of e = r − y for R = 1.
     When 1 + L·(H − 1) vanishes identically the output equals the reference exactly: Ge
     does not exist, ``type`` is reported as DEGENERATE_TYPE and every error is 0.
     """
@@ -100,12 +109,25 @@ class SteadyState:
     kp: sympy.Expr
     kv: sympy.Expr
     ka: sympy.Expr
-    kp_expr: sympy.Expr
-    kv_expr: sympy.Expr
-    ka_expr: sympy.Expr
     step_error: sympy.Expr
     ramp_error: sympy.Expr
     parabola_error: sympy.Expr
+    generic_constants: tuple[_Limit, _Limit, _Limit]
+
+    @property
+    def kp_expr(self) -> sympy.Expr:
+        """Kp as an expression in the gain."""
+        return _value(self.generic_constants[0])
+
+    @property
+    def kv_expr(self) -> sympy.Expr:
+        """Kv as an expression in the gain."""
+        return _value(self.generic_constants[1])
+
+    @property
+    def ka_expr(self) -> sympy.Expr:
+        """Ka as an expression in the gain."""
+        return _value(self.generic_constants[2])
 
 
 # -- series at s = 0 ------------------------------------------------------------------------
@@ -170,10 +192,6 @@ def _evaluate(coefficients: _Coefficients, value: Any) -> _Coefficients:
 
 def _to_poly(p: _Gain) -> sympy.Poly:
     return sympy.Poly.from_dict(dict(p), K, domain=sympy.QQ)
-
-
-def _from_poly(p: sympy.Poly) -> _Gain:
-    return _RING.from_dict(p.as_dict(native=True))
 
 
 @functools.lru_cache(maxsize=64)
@@ -297,6 +315,8 @@ def _value(limit: _Limit) -> sympy.Expr:
         return INF
     num, den = limit.a.cancel(limit.b)
     if den.is_ground:
+        if num.is_ground:  # a number (every limit at the nominal gain): no expression to build
+            return sympy.QQ.to_sympy(num.LC / den.LC)
         return num.as_expr() / sympy.QQ.to_sympy(den.LC)
     return num.as_expr() / den.as_expr()
 
@@ -317,12 +337,14 @@ def steady_state(loop: LoopAlgebra) -> SteadyState:
         kp=_value(_limit(nominal.nge, nominal.dge, 0, z)),
         kv=_value(_limit(nominal.nge, nominal.dge, 1, z)),
         ka=_value(_limit(nominal.nge, nominal.dge, 2, z)),
-        kp_expr=_value(_limit(generic.nge, generic.dge, 0, z)),
-        kv_expr=_value(_limit(generic.nge, generic.dge, 1, z)),
-        ka_expr=_value(_limit(generic.nge, generic.dge, 2, z)),
         step_error=_value(_limit(nominal.dge, nominal.char, 0, z)),
         ramp_error=_value(_limit(nominal.dge, nominal.char, -1, z)),
         parabola_error=_value(_limit(nominal.dge, nominal.char, -2, z)),
+        generic_constants=(
+            _limit(generic.nge, generic.dge, 0, z),
+            _limit(generic.nge, generic.dge, 1, z),
+            _limit(generic.nge, generic.dge, 2, z),
+        ),
     )
 
 
@@ -439,19 +461,19 @@ def _gain_set(
     else:
         holds = holds_at_zero if generic.kind == "zero" else holds_at_inf
         result = positive if holds else GainSet.empty()
-    for root, factor, index in _special_gains(f1, f2):
+    for root, factor, at in _special_gains(f1, f2):
         at_root = _limit(f1, f2, shift, _divisible_by(factor))
         if at_root.kind == "ratio":
-            holds = _sign_at(test(at_root.a, at_root.b), factor, index) >= 0
+            holds = _sign_at(test(at_root.a, at_root.b), factor, at) >= 0
         else:
             holds = holds_at_zero if at_root.kind == "zero" else holds_at_inf
         result = _with_point(result, root, holds)
     return result
 
 
-def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, sympy.Poly, int]]:
+def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, _Gain, Number]]:
     """Gains K > 0 where a generic lowest coefficient of F1 or F2 vanishes, each with its
-    irreducible polynomial and its index among that polynomial's real roots."""
+    irreducible polynomial (an element of the ring) and the root in the analysis' form."""
     low2 = _lowest(f2, _generic_zero)
     if low2 is None:
         return []  # F2 vanishes for every gain: the limit is infinite everywhere
@@ -461,33 +483,51 @@ def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, sympy.Poly,
         special = special * low1[1]
     if special.degree() <= 0:
         return []
+    ints = realroots.integer_coefficients(_fractions(special))
+    while ints[-1] == 0:
+        ints.pop()  # the root K = 0 is not a gain
+    if len(ints) < 2:
+        return []
     points = []
-    for factor, _ in _to_poly(special).factor_list()[1]:
-        for index, root in enumerate(factor.real_roots()):
-            if less(ZERO, root):
-                points.append((root, factor, index))
+    for factor in irreducible_factors(ints):
+        element = _RING.from_dict({(len(factor) - 1 - i,): c for i, c in enumerate(factor) if c})
+        for root in factor_roots(factor):
+            if number_less(_NO_GAIN, root):
+                points.append((to_exact(root), element, root))
     return points
 
 
-def _divisible_by(factor: sympy.Poly) -> _ZeroTest:
+_NO_GAIN = Fraction(0)
+
+
+def _fractions(p: _Gain) -> list[Fraction]:
+    """Coefficients of a polynomial in K, highest power first."""
+    terms = dict(p)
+    top = max(e for (e,) in terms)
+    return [_fraction(terms.get((e,), 0)) for e in range(top, -1, -1)]
+
+
+def _fraction(c: Any) -> Fraction:
+    return Fraction(int(c.numerator), int(c.denominator))
+
+
+def _divisible_by(factor: _Gain) -> _ZeroTest:
     # factor is irreducible over Q, so p(root) = 0 exactly when factor divides p.
-    divisor = _from_poly(factor)
-    return lambda p: not p % divisor
+    return lambda p: not p % factor
 
 
-def _sign_at(gain_poly: _Gain, factor: sympy.Poly, index: int) -> int:
-    """Exact sign of a polynomial at the index-th real root of the irreducible ``factor``."""
-    p = _to_poly(gain_poly)
-    if p.rem(factor).is_zero:
+def _sign_at(gain_poly: _Gain, factor: _Gain, root: Number) -> int:
+    """Exact sign of a polynomial at a real root of the irreducible ``factor``."""
+    if not gain_poly or not gain_poly % factor:
         return 0
-    if factor.degree() == 1:
-        return int(sympy.sign(p.eval(factor.real_roots()[0])))
-    (lo, hi), _ = factor.intervals()[index]
-    # p(root) ≠ 0: shrink the isolating interval until p has no root in it, then the sign of
-    # p anywhere in the interval is its sign at the root.
-    while p.count_roots(lo, hi) > 0:
-        lo, hi = factor.refine_root(lo, hi, eps=(hi - lo) / 8)
-    return int(sympy.sign(p.eval(lo)))
+    p = realroots.integer_coefficients(_fractions(gain_poly))  # a positive multiple
+    if isinstance(root, Fraction):
+        return realroots.value_sign(p, root)
+    # p(root) ≠ 0: once the root's isolating interval has parted from every real root of p
+    # (each comparison narrows it until they part), p keeps one sign on that interval.
+    for other in real_roots([Fraction(c) for c in p]):
+        number_less(root, other)
+    return realroots.value_sign(p, (root.lo + root.hi) / 2)
 
 
 def _with_point(gains: GainSet, point: sympy.Expr, present: bool) -> GainSet:

@@ -1,0 +1,212 @@
+"""Exact real roots, comparisons and sign sets of gainset against sympy: its Poly.real_roots
+(the very numbers, as it writes them), its solve_poly_inequality, and evaluation to 60
+significant digits."""
+
+from __future__ import annotations
+
+import itertools
+from fractions import Fraction
+
+import sympy
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from speclint.analysis import gainset, steady
+from speclint.analysis.gainset import (
+    INF,
+    GainSet,
+    Root,
+    less,
+    number_between,
+    number_less,
+    rational_between,
+    real_roots,
+    to_exact,
+    to_float,
+    where_sign,
+)
+
+X = sympy.Symbol("k")
+
+# Factors whose roots are rational, quadratic irrationals (written as radicals), roots of
+# binomials (radicals again) and of irreducible cubics and quartics (written as CRootOf).
+FACTORS = (
+    X - sympy.Rational(3, 7),
+    5 * X + 2,
+    X,
+    X**2 - 2,
+    7 * X**2 - 30 * X + 11,
+    X**2 + 1,
+    X**3 - 3 * X + 1,
+    X**3 - 2,
+    16 * X**4 - 21,
+    X**4 - 10 * X**2 + 1,
+    3 * X**3 - 40 * X**2 + 7 * X + 50,
+    X**5 + 512 * X + 1024,  # sympy writes its root 4*CRootOf(...): a scaled variable
+)
+
+polynomials = st.builds(
+    lambda picks, scale, lead: sympy.Poly(
+        sympy.Rational(lead, 7)
+        * sympy.Mul(*(f.subs(X, scale * X) for f in picks)),  # scaled roots: k → c·k
+        X,
+        domain=sympy.QQ,
+    ),
+    st.lists(st.sampled_from(FACTORS), min_size=1, max_size=3),
+    st.sampled_from([1, 2, 3, sympy.Rational(1, 10), 25]),
+    st.integers(-9, 9).filter(bool),
+)
+
+
+def coefficients(p: sympy.Poly) -> list[Fraction]:
+    return [Fraction(int(c.p), int(c.q)) for c in p.all_coeffs()]
+
+
+def sympy_distinct_roots(p: sympy.Poly) -> list[sympy.Expr]:
+    out: list[sympy.Expr] = []
+    for r in p.real_roots():
+        if not out or out[-1] != r:
+            out.append(r)
+    return out
+
+
+@settings(max_examples=60, deadline=None)
+@given(polynomials)
+def test_real_roots_are_sympys_numbers(p: sympy.Poly) -> None:
+    # Reference: sympy's Poly.real_roots; the same objects, written the same way.
+    ours = [to_exact(r) for r in real_roots(coefficients(p))]
+    theirs = sympy_distinct_roots(p)
+    assert ours == theirs
+    assert [sympy.sstr(r) for r in ours] == [sympy.sstr(r) for r in theirs]
+
+
+def test_real_roots_of_known_polynomials() -> None:
+    # Reference: sympy's Poly.real_roots, and the values by hand: the roots of
+    # k^4 − 10k^2 + 1 are ±√2 ± √3 (common practice).
+    p = sympy.Poly(X**4 - 10 * X**2 + 1, X)
+    ours = [to_exact(r) for r in real_roots(coefficients(p))]
+    assert ours == sympy_distinct_roots(p)
+    by_hand = sorted(
+        float(a * sympy.sqrt(2) + b * sympy.sqrt(3)) for a, b in itertools.product((1, -1), (1, -1))
+    )
+    assert [float(r) for r in ours] == by_hand
+    scaled = sympy.Poly(X**5 + 512 * X + 1024, X)
+    assert sympy.sstr(to_exact(real_roots(coefficients(scaled))[0])).startswith("4*CRootOf(")
+
+
+def sixty_digits(x: sympy.Expr) -> sympy.Float:
+    return sympy.Float(sympy.N(x, 60), 60)
+
+
+@settings(max_examples=40, deadline=None)
+@given(polynomials, polynomials)
+def test_comparisons_agree_with_sixty_digits(p: sympy.Poly, q: sympy.Poly) -> None:
+    # Reference: both numbers evaluated by sympy to 60 significant digits (no two of
+    # these roots are closer than that).
+    numbers = real_roots(coefficients(p)) + real_roots(coefficients(q))
+    values = [sixty_digits(to_exact(n)) for n in numbers]
+    for (a, va), (b, vb) in itertools.product(zip(numbers, values, strict=True), repeat=2):
+        assert number_less(a, b) == bool(va < vb)
+        assert less(to_exact(a), to_exact(b)) == bool(va < vb)
+        if va < vb:
+            mid = number_between(a, b)
+            assert va < sixty_digits(sympy.Rational(mid.numerator, mid.denominator)) < vb
+            between = rational_between(to_exact(a), to_exact(b))
+            assert va < between < vb
+
+
+def test_comparisons_with_infinity_and_floats() -> None:
+    # Common practice: every finite number lies between −∞ and +∞; a Float end is the
+    # binary number it holds.
+    root = to_exact(real_roots(coefficients(sympy.Poly(X**3 - 3 * X + 1, X)))[2])
+    assert less(root, INF) and less(-INF, root) and not less(INF, root)
+    assert less(sympy.Float(1.5, 15), root) and not less(root, sympy.Float(1.5, 15))
+    assert less(root, sympy.Float(1.6, 15))
+    assert rational_between(-INF, root) < root < rational_between(root, INF)
+
+
+@settings(max_examples=40, deadline=None)
+@given(polynomials, st.booleans(), st.booleans())
+def test_where_sign_matches_sympys_inequality(p: sympy.Poly, positive: bool, closed: bool) -> None:
+    # Reference: sympy.solve_poly_inequality, probed at every root and between them.
+    relation = {(True, False): ">", (True, True): ">=", (False, False): "<", (False, True): "<="}
+    theirs = sympy.Union(*sympy.solve_poly_inequality(p, relation[positive, closed]))
+    ours = where_sign(p, positive, closed)
+    roots = [to_exact(r) for r in real_roots(coefficients(p))]
+    ends = [-INF, *roots, INF]
+    probes = list(roots)
+    for lo, hi in itertools.pairwise(ends):
+        probes.append(rational_between(lo, hi))
+    for x in probes:
+        assert ours.contains(x) == bool(theirs.contains(x)), x
+
+
+def test_where_sign_with_irrational_ends_is_exact() -> None:
+    # Reference: sympy.solve_poly_inequality; 2 − k² ≥ 0 exactly for |k| ≤ √2.
+    p = sympy.Poly(2 - X**2, X, domain=sympy.QQ)
+    ours = where_sign(p, positive=True, closed=True)
+    assert ours == GainSet.between(-sympy.sqrt(2), sympy.sqrt(2))
+    assert ours.contains(sympy.sqrt(2)) and not ours.contains(sympy.Rational(1415, 1000))
+
+
+@settings(max_examples=30, deadline=None)
+@given(polynomials, polynomials)
+def test_sign_at_an_irrational_special_gain(p: sympy.Poly, q: sympy.Poly) -> None:
+    # Reference: the value of q at the root, evaluated by sympy to 60 significant digits.
+    factor = next((f for f, _ in p.factor_list()[1] if f.degree() >= 2), None)
+    if factor is None:
+        return
+    ring = steady._RING
+    element = ring.from_dict({(e,): c for (e,), c in factor.as_dict(native=True).items()})
+    value = ring.from_dict({(e,): c for (e,), c in q.as_dict(native=True).items()})
+    for root in real_roots(coefficients(factor)):
+        assert isinstance(root, Root)
+        at_root = sixty_digits(q.as_expr().subs(X, to_exact(root)))
+        expected = 0 if q.rem(factor).is_zero else (1 if at_root > 0 else -1)
+        assert steady._sign_at(value, element, root) == expected
+
+
+def test_comparisons_of_close_numbers() -> None:
+    # Reference: for positive numbers a < b exactly when a² < b² (common practice), decided
+    # here on integers. √2 against the convergents of its continued fraction (alternately
+    # below and above it, ever closer) and against √(2 + 10^-40), 3.5·10^-41 above it.
+    sqrt2 = real_roots([Fraction(1), Fraction(0), Fraction(-2)])[1]
+    near = real_roots([Fraction(10**40), Fraction(0), -Fraction(2 * 10**40 + 1)])[1]
+    assert number_less(sqrt2, near) and not number_less(near, sqrt2)
+    assert less(to_exact(sqrt2), to_exact(near))
+    p, q = 1, 1
+    for _ in range(60):
+        p, q = p + 2 * q, p + q  # the next convergent p/q of √2
+        x = Fraction(p, q)
+        below = x * x < 2
+        assert number_less(x, sqrt2) == below
+        assert number_less(sqrt2, x) == (not below)
+        assert less(to_exact(x), to_exact(sqrt2)) == below
+    mid = number_between(sqrt2, near)
+    assert 2 < mid * mid < 2 + Fraction(1, 10**40)
+
+
+@settings(max_examples=40, deadline=None)
+@given(polynomials)
+def test_floats_of_roots_are_sympys(p: sympy.Poly) -> None:
+    # Reference: sympy's own numbers for these roots (its real_roots, its isolation, its
+    # evalf to 17 digits, then 15), as to_float has always written an end.
+    theirs = [float(sympy.Float(r.evalf(17), 15)) for r in sympy_distinct_roots(p)]
+    assert [to_float(to_exact(r)) for r in real_roots(coefficients(p))] == theirs
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.lists(st.integers(-50, 50), min_size=2, max_size=8).filter(
+        lambda c: c[0] != 0 and any(c[1:])
+    ),
+    st.sampled_from([1, 2, 3, 4, 6, 10, 100]),
+    st.sampled_from([1, 7, 64, 1000]),
+)
+def test_variable_scale_is_sympys(coeffs: list[int], base: int, content: int) -> None:
+    # Reference: sympy's preprocess_roots, whose scale shows in how roots are written.
+    from sympy.polys.polyroots import preprocess_roots
+
+    scaled = tuple(content * c * base**i for i, c in enumerate(coeffs))  # roots times base
+    expected = int(preprocess_roots(sympy.Poly(list(scaled), X, domain=sympy.ZZ))[0])
+    assert gainset._variable_scale(scaled) == expected
