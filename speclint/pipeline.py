@@ -8,10 +8,11 @@ edges (discover, load, report) touch the outside world.
 
 from __future__ import annotations
 
+import gc
 import os
 import signal
 import threading
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -182,23 +183,35 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
         if hit is None:
             work.append((len(out) - 1, loop, mine, key))
     jobs = options.jobs if options.jobs > 0 else default_jobs(len(work))
-    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs)
-    for (slot, _, _, key), analysed in zip(work, done, strict=True):
-        out[slot] = analysed
+
+    def keep(i: int, analysed: Analysed) -> None:
+        # Written as each loop is done, while the workers go on with the others.
+        key = work[i][3]
         if cache is not None and key is not None and not _has_internal_error(analysed):
             cache.put(key, *analysed)
+
+    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs, keep)
+    for (slot, _, _, _), analysed in zip(work, done, strict=True):
+        out[slot] = analysed
     return [a for a in out if a is not None]
 
 
-def _run(tasks: list[tuple[Loop, list[Requirement]]], jobs: int) -> list[Analysed]:
+def _run(
+    tasks: list[tuple[Loop, list[Requirement]]],
+    jobs: int,
+    keep: Callable[[int, Analysed], None] | None = None,
+) -> list[Analysed]:
     """analyse_loop on every task, in worker processes when jobs > 1; a file whose loops keep
-    running out of budget has its remaining loops skipped (see MAX_EXPIRED_PER_FILE)."""
+    running out of budget has its remaining loops skipped (see MAX_EXPIRED_PER_FILE).
+    ``keep(i, result)`` is called as each task's result arrives."""
     done: list[Analysed | None] = [None] * len(tasks)
     expired: dict[str, int] = {}
 
     def record(i: int, analysed: Analysed) -> bool:
         """Keep the result; True when its file has now used up its allowance."""
         done[i] = analysed
+        if keep is not None:
+            keep(i, analysed)
         if any(f.rule == "SL407" for f in analysed[2]):
             path = tasks[i][0].location.path
             expired[path] = expired.get(path, 0) + 1
@@ -212,17 +225,24 @@ def _run(tasks: list[tuple[Loop, list[Requirement]]], jobs: int) -> list[Analyse
         # share the libraries' pages with this process instead of each loading its own.
         from speclint import judge  # noqa: F401
 
-        with ProcessPoolExecutor(max_workers=jobs) as pool:
-            futures = {pool.submit(analyse_loop, task): i for i, task in enumerate(tasks)}
-            for future in as_completed(futures):
-                if future.cancelled():
-                    continue
-                i = futures[future]
-                if record(i, future.result()):
-                    path = tasks[i][0].location.path
-                    for other, j in futures.items():
-                        if tasks[j][0].location.path == path:
-                            other.cancel()  # only those not yet started; the rest finish
+        # Untrack what exists now from the cycle collector: its passes in a worker would
+        # write to every object inherited from this process and so copy their pages
+        # (copy-on-write), which would give each worker its own copy of everything read.
+        gc.freeze()
+        try:
+            with ProcessPoolExecutor(max_workers=jobs) as pool:
+                futures = {pool.submit(analyse_loop, task): i for i, task in enumerate(tasks)}
+                for future in as_completed(futures):
+                    if future.cancelled():
+                        continue
+                    i = futures[future]
+                    if record(i, future.result()):
+                        path = tasks[i][0].location.path
+                        for other, j in futures.items():
+                            if tasks[j][0].location.path == path:
+                                other.cancel()  # only those not yet started; the rest finish
+        finally:
+            gc.unfreeze()  # this process goes on (a test run, say): collect as usual
     else:
         for i, task in enumerate(tasks):
             if expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:

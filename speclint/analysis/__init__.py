@@ -13,7 +13,11 @@ def forget() -> None:
     worker that analyses hundreds of loops calls this after each one, so its memory stays
     that of one loop's analysis. Results do not depend on it.
     """
-    for name in ("speclint.analysis.margins", "speclint.analysis.steady"):
+    for name in (
+        "speclint.analysis.gainset",
+        "speclint.analysis.margins",
+        "speclint.analysis.steady",
+    ):
         module = sys.modules.get(name)
         if module is None:
             continue
