@@ -506,8 +506,17 @@ def test_random_loops_against_numeric_sweep(
         {e for e in ends(result.gains)} | {to_float(b.gain) for b in result.boundaries}
     )
     inside = [e for e in exact_ends if 2 * window[0] < e < window[1] / 2]
+    # Where D + K·N loses its leading term a closed-loop root passes through infinity; the
+    # sweep's numpy roots are ill-conditioned so close to that gain (a huge root beside
+    # small ones), and its boundary there is only good to about 1e-4 relative.
+    through_infinity = -float(dc[0] / nc[0]) if len(nc) == len(dc) else None
+
+    def tolerance(e: float) -> float:
+        near = through_infinity is not None and abs(e - through_infinity) <= 1e-9 * abs(e)
+        return 1e-4 if near else 1e-6
+
     for f in numeric_boundaries(numeric.clearly_stable, *window, 400):
-        assert any(abs(f - e) <= 1e-6 * e for e in exact_ends), (f, exact_ends)
+        assert any(abs(f - e) <= tolerance(e) * e for e in exact_ends), (f, exact_ends)
     for e in inside:
         gaps = [abs(e - o) for o in exact_ends if o != e]
         delta = min([1e-6 * e, *(0.3 * g for g in gaps)])
