@@ -55,7 +55,6 @@ def build(doc: Document) -> tuple[SpecFile, list[Finding]]:
             broken_reqs.append(BrokenRequirement(raw["id"], where, loop if sound else None))
     spec = SpecFile(
         doc.path,
-        doc,
         data.get("title"),
         tuple(loops),
         tuple(requirements),

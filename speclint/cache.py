@@ -1,5 +1,6 @@
 """The analysis cache: one JSON file per loop, keyed by everything its verdicts depend on,
-and one per spec file, keyed by its bytes, holding the file as loading and validation left it.
+and one per spec file, keyed by its bytes, holding its findings up to the build stage and
+the model built from it.
 
 The key hashes the loop's model and its requirements exactly as built (expressions as
 written, exact numbers, and the places findings point at, so a finding never comes back
@@ -26,12 +27,25 @@ from typing import Any
 
 from speclint import __version__
 from speclint.findings import Finding, Location, Severity
-from speclint.load import Document
-from speclint.model import Loop, Requirement
+from speclint.model import (
+    BrokenRequirement,
+    Constant,
+    Disturbance,
+    ErrorConstants,
+    Expression,
+    Gain,
+    Loop,
+    MarginLimits,
+    Requirement,
+    Review,
+    SpecFile,
+    Tracking,
+    Verification,
+)
 from speclint.results import CriterionResult, LoopResult, RequirementResult
 
-# 2: a spec file's entry holds the loaded document, not only its validation findings.
-ENTRY_FORMAT = 2
+# 3: a spec file's entry holds its built model, not only its validation findings.
+ENTRY_FORMAT = 3
 
 
 @functools.cache
@@ -90,28 +104,26 @@ class Cache:
             return None
         return loop, reqs, found
 
-    def get_file(self, key: str, shown: str, text: str) -> tuple[list[Finding], Document] | None:
-        """A spec file as loading and validation left it, with their findings, stored under
-        `key` (the file's bytes): a file that has not changed is neither parsed nor validated
-        again, which is most of a warm run."""
+    def get_file(self, key: str) -> tuple[list[Finding], SpecFile | None] | None:
+        """A spec file's findings from loading, validating and building, and the model
+        built (None when its errors left nothing to build), stored under `key` (the file's
+        bytes, its path and the code)."""
         try:
             entry = self._read(key, object_hook=_revive)
             if entry is None:
                 return None
             found = [_finding_from(f) for f in entry["findings"]]
-            doc = _document_from(entry["document"], shown, text)
+            spec = _spec_from(entry["spec"])
         except (OSError, ValueError, KeyError, TypeError, AttributeError):
             return None
-        return found, doc
+        return found, spec
 
-    def put_file(self, key: str, found: list[Finding], doc: Document) -> None:
-        """Keep a loaded and validated file (its data: the load stage's strings, ints,
-        booleans, nulls and Fractions under string keys, all of which JSON carries)."""
+    def put_file(self, key: str, found: list[Finding], spec: SpecFile | None) -> None:
         entry = {
             "format": ENTRY_FORMAT,
             "key": key,
             "findings": [_finding_to(f) for f in found],
-            "document": _document_to(doc),
+            "spec": spec,
         }
         self._write(key, entry)
 
@@ -173,9 +185,6 @@ class Cache:
             marker.write_text("# written by speclint: the analysis cache is not for git\n*\n")
 
 
-DataPath = tuple[str | int, ...]
-
-
 def _seal(body: str) -> str:
     return hmac.new(_machine_secret(), body.encode("utf-8"), hashlib.sha256).hexdigest()
 
@@ -214,19 +223,45 @@ def _machine_secret() -> bytes:
     return secret
 
 
-# A loaded file's exact numbers in JSON: {"\x00": [numerator, denominator]}. No key of a
-# spec can be NUL (the load stage refuses control characters), so nothing else reads so.
+# Exact numbers in JSON: {"\x00": [numerator, denominator]}; a record of the spec model:
+# its fields and {"\x01": class name}. No key of a spec can hold a control character (the
+# load stage refuses them), so nothing else reads so.
 _FRACTION_TAG = "\x00"
+_RECORD_TAG = "\x01"
+_MODEL: dict[str, type] = {
+    cls.__name__: cls
+    for cls in (
+        Location,
+        Expression,
+        Constant,
+        Gain,
+        Loop,
+        Tracking,
+        ErrorConstants,
+        Disturbance,
+        MarginLimits,
+        Verification,
+        Review,
+        Requirement,
+        BrokenRequirement,
+        SpecFile,
+    )
+}
 
 
 def _to_json(value: Any) -> Any:
-    """What json cannot write itself: a result record as the dict of its fields (json
-    calls this again for records inside it; a tenth of the cost of dataclasses.asdict,
-    which deep-copies every value first), an exact number with the fraction tag."""
+    """What json cannot write itself: an exact number with the fraction tag; a record of
+    the spec model as its fields with its class name (read back by _revive); a result
+    record as the dict of its fields (json calls this again for records inside it; a
+    tenth of the cost of dataclasses.asdict, which deep-copies every value first)."""
     if isinstance(value, Fraction):
         return {_FRACTION_TAG: [value.numerator, value.denominator]}
     if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        return {f.name: getattr(value, f.name) for f in dataclasses.fields(value)}
+        fields = {f.name: getattr(value, f.name) for f in dataclasses.fields(value)}
+        kind = type(value)
+        if _MODEL.get(kind.__name__) is kind:
+            fields[_RECORD_TAG] = kind.__name__
+        return fields
     raise TypeError(f"{type(value).__name__} is not kept in the cache")
 
 
@@ -236,48 +271,17 @@ def _revive(d: dict[str, Any]) -> Any:
         if not isinstance(num, int) or not isinstance(den, int) or den <= 0:
             raise TypeError("not a fraction")
         return Fraction(num, den)
-    return d
+    name = d.pop(_RECORD_TAG, None)
+    if name is None:
+        return d
+    # The model holds tuples, never lists: JSON's arrays become tuples again.
+    return _MODEL[name](**{k: tuple(v) if isinstance(v, list) else v for k, v in d.items()})
 
 
-def _marks_to(marks: dict[DataPath, tuple[int, int]]) -> list[Any]:
-    return [[list(path), line, column] for path, (line, column) in marks.items()]
-
-
-def _marks_from(rows: Any) -> dict[DataPath, tuple[int, int]]:
-    # Sealed entries are our own writing: the shape is checked only as far as a wrong one
-    # would raise (a list inside a path is unhashable), which costs nothing per mark.
-    return {tuple(path): (line, column) for path, line, column in rows}
-
-
-def _document_to(doc: Document) -> dict[str, Any]:
-    return {
-        "data": doc.data,
-        "value_marks": _marks_to(doc.value_marks),
-        "key_marks": _marks_to(doc.key_marks),
-        "plain_text": [[list(path), text] for path, text in doc.plain_text.items()],
-        "flagged": sorted(([*p] for p in doc.flagged), key=repr),
-    }
-
-
-def _document_from(d: dict[str, Any], shown: str, text: str) -> Document:
-    plain = {tuple(path): str(written) for path, written in d["plain_text"]}
-    return Document(
-        shown,
-        text,
-        d["data"],
-        _marks_from(d["value_marks"]),
-        _marks_from(d["key_marks"]),
-        plain,
-        {_data_path(p) for p in d["flagged"]},
-    )
-
-
-def _data_path(value: Any) -> DataPath:
-    if not isinstance(value, list) or not all(
-        isinstance(p, str | int) and not isinstance(p, bool) for p in value
-    ):
-        raise TypeError("not a data path")
-    return tuple(value)
+def _spec_from(value: Any) -> SpecFile | None:
+    if value is not None and not isinstance(value, SpecFile):
+        raise TypeError("not a spec file")
+    return value
 
 
 def _finding_to(f: Finding) -> dict[str, Any]:

@@ -12,7 +12,6 @@ from fractions import Fraction
 from typing import Literal
 
 from speclint.findings import Location
-from speclint.load import Document
 
 Reference = Literal["step", "ramp", "parabola"]
 VerificationMethod = Literal["analysis", "test", "inspection", "demonstration"]
@@ -150,7 +149,6 @@ class BrokenRequirement:
 @dataclass(frozen=True, slots=True)
 class SpecFile:
     path: str
-    document: Document = field(compare=False, hash=False, repr=False)
     title: str | None = None
     loops: tuple[Loop, ...] = ()
     requirements: tuple[Requirement, ...] = ()

@@ -22,7 +22,7 @@ from speclint.build import build, buildable
 from speclint.cache import Cache, file_key, loop_key
 from speclint.discover import Config, display_path, spec_files
 from speclint.findings import Finding, Location
-from speclint.load import MAX_FILE_BYTES, Document, read_spec, spec_text
+from speclint.load import MAX_FILE_BYTES, read_spec, spec_text
 from speclint.model import Loop, Requirement, SpecFile
 from speclint.results import LoopResult, RequirementResult, RunResult
 from speclint.rules import finding
@@ -103,48 +103,49 @@ def _read_one(
         return None
     try:
         known = _known_file(shown, raw, cache)
-        if known is None:
-            found, doc = _load_and_validate(shown, raw, cache)
-        else:
-            found, doc = known
+        found, spec, text = known if known is not None else _read_afresh(shown, raw, cache)
         result.findings.extend(found)
-        if doc is None:
-            return None
-        result.sources[shown] = doc.text
-        if not buildable(doc):
-            return None
-        spec, built = build(doc)
-        result.findings.extend(built)
+        if text is not None:
+            result.sources[shown] = text
         return spec
     except Exception as exc:  # a bug of ours must not cost the user the other files
         result.findings.append(internal_error(shown, exc))
         return None
 
 
-def _known_file(
-    shown: str, raw: bytes, cache: Cache | None
-) -> tuple[list[Finding], Document] | None:
-    """What loading and validating these very bytes gave before, if the cache has it."""
+FileRead = tuple[list[Finding], SpecFile | None, str | None]
+
+
+def _known_file(shown: str, raw: bytes, cache: Cache | None) -> FileRead | None:
+    """What loading, validating and building these very bytes gave before, if the cache
+    has it: a warm run neither parses the YAML nor validates nor builds again."""
     if cache is None or len(raw) > MAX_FILE_BYTES:
         return None
     try:
         text = spec_text(raw)
     except UnicodeDecodeError:
         return None
-    return cache.get_file(file_key(shown, raw), shown, text)
+    known = cache.get_file(file_key(shown, raw))
+    if known is None:
+        return None
+    found, spec = known
+    return found, spec, text
 
 
-def _load_and_validate(
-    shown: str, raw: bytes, cache: Cache | None
-) -> tuple[list[Finding], Document | None]:
+def _read_afresh(shown: str, raw: bytes, cache: Cache | None) -> FileRead:
+    """Load, validate and build one file's bytes (and keep the outcome in the cache)."""
     loaded = read_spec(shown, raw)
     doc = loaded.document
     if doc is None:
-        return loaded.findings, None
+        return loaded.findings, None, None
     found = loaded.findings + validate(doc)
+    spec = None
+    if buildable(doc):
+        spec, built = build(doc)
+        found += built
     if cache is not None:
-        cache.put_file(file_key(shown, raw), found, doc)
-    return found, doc
+        cache.put_file(file_key(shown, raw), found, spec)
+    return found, spec, doc.text
 
 
 def internal_error(shown: str, exc: BaseException, where: Location | None = None) -> Finding:
