@@ -266,16 +266,18 @@ def _to_json(value: Any) -> Any:
 
 
 def _revive(d: dict[str, Any]) -> Any:
+    name = d.pop(_RECORD_TAG, None)
+    if name == "Location":  # nine records in ten: the places of keys
+        return Location(d["path"], d["line"], d["column"])
+    if name is not None:
+        # The model holds tuples, never lists: JSON's arrays become tuples again.
+        return _MODEL[name](**{k: tuple(v) if isinstance(v, list) else v for k, v in d.items()})
     if _FRACTION_TAG in d:
         num, den = d[_FRACTION_TAG]
         if not isinstance(num, int) or not isinstance(den, int) or den <= 0:
             raise TypeError("not a fraction")
         return Fraction(num, den)
-    name = d.pop(_RECORD_TAG, None)
-    if name is None:
-        return d
-    # The model holds tuples, never lists: JSON's arrays become tuples again.
-    return _MODEL[name](**{k: tuple(v) if isinstance(v, list) else v for k, v in d.items()})
+    return d
 
 
 def _spec_from(value: Any) -> SpecFile | None:
