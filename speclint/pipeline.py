@@ -23,7 +23,7 @@ from speclint.cache import Cache, file_key, loop_key
 from speclint.discover import Config, display_path, spec_files
 from speclint.findings import Finding, Location
 from speclint.load import MAX_FILE_BYTES, read_spec, spec_text
-from speclint.model import Loop, Requirement, SpecFile
+from speclint.model import Loop, MarginLimits, Requirement, SpecFile
 from speclint.results import LoopResult, RequirementResult, RunResult
 from speclint.rules import finding
 from speclint.validate import validate
@@ -289,6 +289,13 @@ def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:
     # (or finds everything in the cache) must not pay for.
     from speclint import judge
     from speclint.analysis import forget
+
+    if loop.delay is not None or any(
+        isinstance(c, MarginLimits) for r in requirements for c in r.criteria
+    ):
+        # The frequency searches need scipy (half a second to import): loaded here, before
+        # the budget's clock starts, so that its signal can never cut an import short.
+        import scipy.optimize  # noqa: F401
 
     try:
         with time_budget(LOOP_BUDGET_S):
