@@ -25,23 +25,9 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from speclint import __version__
+from speclint import __version__, model
 from speclint.findings import Finding, Location, Severity
-from speclint.model import (
-    BrokenRequirement,
-    Constant,
-    Disturbance,
-    ErrorConstants,
-    Expression,
-    Gain,
-    Loop,
-    MarginLimits,
-    Requirement,
-    Review,
-    SpecFile,
-    Tracking,
-    Verification,
-)
+from speclint.model import Loop, Requirement, SpecFile
 from speclint.results import CriterionResult, LoopResult, RequirementResult
 
 # 3: a spec file's entry holds its built model, not only its validation findings.
@@ -228,23 +214,17 @@ def _machine_secret() -> bytes:
 # load stage refuses them), so nothing else reads so.
 _FRACTION_TAG = "\x00"
 _RECORD_TAG = "\x01"
+# Every record class of the spec model (a new one is included by being there), and the
+# places they hold.
 _MODEL: dict[str, type] = {
     cls.__name__: cls
-    for cls in (
-        Location,
-        Expression,
-        Constant,
-        Gain,
-        Loop,
-        Tracking,
-        ErrorConstants,
-        Disturbance,
-        MarginLimits,
-        Verification,
-        Review,
-        Requirement,
-        BrokenRequirement,
-        SpecFile,
+    for cls in (Location, *vars(model).values())
+    if isinstance(cls, type)
+    and dataclasses.is_dataclass(cls)
+    and cls.__module__
+    in (
+        model.__name__,
+        Location.__module__,
     )
 }
 

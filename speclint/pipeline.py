@@ -102,8 +102,9 @@ def _read_one(
         )
         return None
     try:
-        known = _known_file(shown, raw, cache)
-        found, spec, text = known if known is not None else _read_afresh(shown, raw, cache)
+        key = file_key(shown, raw) if cache is not None else None
+        known = _known_file(raw, key, cache)
+        found, spec, text = known if known is not None else _read_afresh(shown, raw, key, cache)
         result.findings.extend(found)
         if text is not None:
             result.sources[shown] = text
@@ -116,23 +117,23 @@ def _read_one(
 FileRead = tuple[list[Finding], SpecFile | None, str | None]
 
 
-def _known_file(shown: str, raw: bytes, cache: Cache | None) -> FileRead | None:
+def _known_file(raw: bytes, key: str | None, cache: Cache | None) -> FileRead | None:
     """What loading, validating and building these very bytes gave before, if the cache
     has it: a warm run neither parses the YAML nor validates nor builds again."""
-    if cache is None or len(raw) > MAX_FILE_BYTES:
+    if cache is None or key is None or len(raw) > MAX_FILE_BYTES:
         return None
     try:
         text = spec_text(raw)
     except UnicodeDecodeError:
         return None
-    known = cache.get_file(file_key(shown, raw))
+    known = cache.get_file(key)
     if known is None:
         return None
     found, spec = known
     return found, spec, text
 
 
-def _read_afresh(shown: str, raw: bytes, cache: Cache | None) -> FileRead:
+def _read_afresh(shown: str, raw: bytes, key: str | None, cache: Cache | None) -> FileRead:
     """Load, validate and build one file's bytes (and keep the outcome in the cache)."""
     loaded = read_spec(shown, raw)
     doc = loaded.document
@@ -143,8 +144,8 @@ def _read_afresh(shown: str, raw: bytes, cache: Cache | None) -> FileRead:
     if buildable(doc):
         spec, built = build(doc)
         found += built
-    if cache is not None:
-        cache.put_file(file_key(shown, raw), found, spec)
+    if cache is not None and key is not None:
+        cache.put_file(key, found, spec)
     return found, spec, doc.text
 
 
