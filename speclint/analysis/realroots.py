@@ -45,23 +45,24 @@ def sign_variations(coeffs: Sequence[int]) -> int:
     return count
 
 
-def value_sign(p: Sequence[int], x: Fraction) -> int:
-    """Exact sign of p(x), p with integer coefficients (highest power first)."""
+def _scaled_value(p: Sequence[int], x: Fraction) -> tuple[int, int]:
+    """(a, d) with p(x) = a/d, d > 0: Horner's rule in integers, x = n/d' (no gcds)."""
     num, den = x.numerator, x.denominator
     acc, scale = p[0], 1
     for c in p[1:]:
         scale *= den
         acc = acc * num + c * scale
+    return acc, scale
+
+
+def value_sign(p: Sequence[int], x: Fraction) -> int:
+    """Exact sign of p(x), p with integer coefficients (highest power first)."""
+    acc, _scale = _scaled_value(p, x)
     return (acc > 0) - (acc < 0)
 
 
 def _value(p: Sequence[int], x: Fraction) -> Fraction:
-    num, den = x.numerator, x.denominator
-    acc, scale = p[0], 1
-    for c in p[1:]:
-        scale *= den
-        acc = acc * num + c * scale
-    return Fraction(acc, scale)
+    return Fraction(*_scaled_value(p, x))
 
 
 def _derivative(p: Sequence[int]) -> list[int]:
