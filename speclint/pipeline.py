@@ -16,6 +16,7 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from speclint import trace
 from speclint.build import build, buildable
@@ -28,6 +29,9 @@ from speclint.results import LoopResult, RequirementResult, RunResult
 from speclint.rules import finding
 from speclint.validate import validate
 
+if TYPE_CHECKING:  # multiprocessing itself only when workers are started
+    from multiprocessing.context import BaseContext
+
 
 @dataclass(frozen=True, slots=True)
 class Options:
@@ -39,7 +43,8 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
     """Check the spec files that `given` (or the configuration) names."""
     options = options or Options()
     cache = Cache(config.root / config.cache_dir) if options.use_cache else None
-    result, specs, found = read_specs(config, given, cwd, cache)
+    early = _EarlyWorkers(options.jobs)
+    result, specs, found = read_specs(config, given, cwd, cache, early.saw)
     for loop_result, req_results, loop_findings in _analyse_all(found, config, options):
         result.loops.append(loop_result)
         result.requirements.extend(req_results)
@@ -69,11 +74,16 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
 
 
 def read_specs(
-    config: Config, given: list[str], cwd: Path, cache: Cache | None = None
+    config: Config,
+    given: list[str],
+    cwd: Path,
+    cache: Cache | None = None,
+    read_afresh: Callable[[SpecFile], None] | None = None,
 ) -> tuple[RunResult, list[SpecFile], trace.Index]:
     """Load, validate, build and index the spec files; nothing analysed yet.
 
-    The result holds the files read and their findings so far.
+    The result holds the files read and their findings so far. ``read_afresh(spec)`` is
+    called for each file that was not in the cache, as soon as it is built.
     """
     files, empty = spec_files(config, given, cwd)
     result = RunResult(files=[], findings=[])
@@ -83,14 +93,18 @@ def read_specs(
     for path in files:
         shown = display_path(path, cwd)
         result.files.append(shown)
-        spec = _read_one(path, shown, result, cache)
+        spec = _read_one(path, shown, result, cache, read_afresh)
         if spec is not None:
             specs.append(spec)
     return result, specs, trace.index(specs, result.findings)
 
 
 def _read_one(
-    path: Path, shown: str, result: RunResult, cache: Cache | None = None
+    path: Path,
+    shown: str,
+    result: RunResult,
+    cache: Cache | None = None,
+    read_afresh: Callable[[SpecFile], None] | None = None,
 ) -> SpecFile | None:
     try:
         size = path.stat().st_size
@@ -105,6 +119,8 @@ def _read_one(
         key = file_key(shown, raw) if cache is not None else None
         known = _known_file(raw, key, cache)
         found, spec, text = known if known is not None else _read_afresh(shown, raw, key, cache)
+        if known is None and spec is not None and read_afresh is not None:
+            read_afresh(spec)
         result.findings.extend(found)
         if text is not None:
             result.sources[shown] = text
@@ -223,28 +239,21 @@ def _run(
     if jobs > 1 and len(tasks) > 1:
         from concurrent.futures import ProcessPoolExecutor, as_completed
 
-        # Import the analysis before the workers are forked: they then start at once and
-        # share the libraries' pages with this process instead of each loading its own.
-        from speclint import judge  # noqa: F401
-
-        # Untrack what exists now from the cycle collector: its passes in a worker would
-        # write to every object inherited from this process and so copy their pages
-        # (copy-on-write), which would give each worker its own copy of everything read.
-        gc.freeze()
-        try:
-            with ProcessPoolExecutor(max_workers=jobs) as pool:
-                futures = {pool.submit(analyse_loop, task): i for i, task in enumerate(tasks)}
-                for future in as_completed(futures):
-                    if future.cancelled():
-                        continue
-                    i = futures[future]
-                    if record(i, future.result()):
-                        path = tasks[i][0].location.path
-                        for other, j in futures.items():
-                            if tasks[j][0].location.path == path:
-                                other.cancel()  # only those not yet started; the rest finish
-        finally:
-            gc.unfreeze()  # this process goes on (a test run, say): collect as usual
+        # gc.freeze as each worker starts: the cycle collector then leaves the objects
+        # inherited from the fork server alone, instead of writing to them and so giving
+        # each worker its own copy of their pages (copy-on-write).
+        pool = ProcessPoolExecutor(jobs, mp_context=worker_context(), initializer=gc.freeze)
+        with pool:
+            futures = {pool.submit(analyse_loop, task): i for i, task in enumerate(tasks)}
+            for future in as_completed(futures):
+                if future.cancelled():
+                    continue
+                i = futures[future]
+                if record(i, future.result()):
+                    path = tasks[i][0].location.path
+                    for other, j in futures.items():
+                        if tasks[j][0].location.path == path:
+                            other.cancel()  # only those not yet started; the rest finish
     else:
         for i, task in enumerate(tasks):
             if expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
@@ -265,9 +274,58 @@ def _skipped(loop: Loop, requirements: list[Requirement]) -> Analysed:
     return judge.unanalysed_loop(loop), [judge.invalid(r, why) for r in requirements], [stopped]
 
 
+# Loops to analyse from which worker processes repay their start.
+PARALLEL_FROM = 24
+
+
 def default_jobs(loops_to_analyse: int) -> int:
     """Worker processes: one per core once there are enough loops to repay starting them."""
-    return usable_cores() if loops_to_analyse >= 24 else 1
+    return usable_cores() if loops_to_analyse >= PARALLEL_FROM else 1
+
+
+# What the worker processes need, imported once by the fork server they are forked from
+# (over a second: sympy, numpy, scipy), so that they start ready and share those pages.
+_WORKER_PRELOAD = ["speclint.judge", "scipy.optimize"]
+
+
+def worker_context() -> BaseContext:
+    """How worker processes are made: forked from a fork server that has the analysis
+    libraries loaded where the platform has one (POSIX); started afresh elsewhere."""
+    import multiprocessing
+
+    if "forkserver" not in multiprocessing.get_all_start_methods():
+        return multiprocessing.get_context("spawn")
+    context = multiprocessing.get_context("forkserver")
+    context.set_forkserver_preload(_WORKER_PRELOAD)  # no effect once the server runs
+    return context
+
+
+class _EarlyWorkers:
+    """Starts the fork server while the files are still being read.
+
+    Its imports then run on another core while this process reads, parses and validates:
+    on a cold run over many loops that hides most of the import's cost. Started once the
+    files read afresh hold enough loops to be analysed in parallel (a guess made before
+    the cache is asked about the loops: a wrong guess costs an idle process, not time).
+    """
+
+    def __init__(self, jobs: int) -> None:
+        self.jobs = jobs
+        self.loops = 0
+        self.started = False
+
+    def saw(self, spec: SpecFile) -> None:
+        if self.started or self.jobs == 1:
+            return
+        self.loops += len(spec.loops)
+        enough = self.loops >= (2 if self.jobs > 1 else PARALLEL_FROM)
+        if enough and (self.jobs > 1 or usable_cores() > 1):
+            self.started = True
+            context = worker_context()
+            if context.get_start_method() == "forkserver":
+                from multiprocessing import forkserver
+
+                forkserver.ensure_running()
 
 
 def usable_cores() -> int:

@@ -218,9 +218,36 @@ def test_two_workers_give_the_serial_answer(tmp_path, monkeypatch):
     # The same through the cache: entries written by workers read back identically.
     assert _check("axes.yaml", "--jobs", "2") == serial
     assert _check("axes.yaml", "--jobs", "2") == serial
-    # Objects are kept from the cycle collector only while workers are forked from this
-    # process; a process that goes on (this test run) collects them again afterwards.
+    # Workers freeze what they inherit from the fork server, never this process's objects:
+    # a process that goes on (this test run) goes on collecting them.
     assert gc.get_freeze_count() == 0
+
+
+def test_workers_are_started_early_only_for_many_loops_read_afresh(monkeypatch):
+    from multiprocessing import forkserver
+
+    from speclint.model import SpecFile
+
+    started: list[bool] = []
+    monkeypatch.setattr(forkserver, "ensure_running", lambda: started.append(True))
+    monkeypatch.setattr(speclint.pipeline, "usable_cores", lambda: 2)
+    ten = SpecFile(path="a.yaml", loops=(object(),) * 10)  # only their number counts here
+    early = speclint.pipeline._EarlyWorkers(0)
+    early.saw(ten)
+    early.saw(ten)
+    assert started == []  # 20 loops: they are analysed in this process
+    early.saw(ten)
+    early.saw(ten)
+    assert started == [True]  # once, at 24 or more
+    serial = speclint.pipeline._EarlyWorkers(1)
+    for _ in range(10):
+        serial.saw(ten)
+    assert started == [True]
+    monkeypatch.setattr(speclint.pipeline, "usable_cores", lambda: 1)
+    one_core = speclint.pipeline._EarlyWorkers(0)
+    for _ in range(10):
+        one_core.saw(ten)
+    assert started == [True]
 
 
 def test_the_default_uses_workers_only_for_many_loops():

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import contextlib
 import json
+import multiprocessing
 import re
 import time
 from fractions import Fraction
@@ -440,6 +441,10 @@ def test_budget_stops_a_stubborn_analysis_and_then_the_file(speclint, monkeypatc
 
     monkeypatch.setattr(judge, "judge_loop", stubborn)
     monkeypatch.setattr(pipeline, "LOOP_BUDGET_S", 0.3)
+    # Workers forked from this process, so that they see the stand-ins above (those from the
+    # fork server would run the real analysis, with the real budget).
+    fork = multiprocessing.get_context("fork")
+    monkeypatch.setattr(pipeline, "worker_context", lambda: fork)
     start = time.perf_counter()
     run = speclint({"a.yaml": MANY}, "--jobs", jobs)
     elapsed = time.perf_counter() - start

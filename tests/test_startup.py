@@ -139,3 +139,22 @@ def test_a_loop_without_frequency_searches_needs_no_scipy(tmp_path):
     (tmp_path / "margins.yaml").write_text(margins)
     used, _ = _probe(tmp_path, "check", "margins.yaml", "--no-cache", "-o", "b.txt")
     assert "scipy" in used
+
+
+def test_a_parallel_run_leaves_the_libraries_to_its_workers(tmp_path):
+    # The workers are forked from a fork server that imported the analysis libraries once
+    # (while this process was still reading the files): the process that reads the files
+    # and writes the report never loads them, and the answer is a serial run's.
+    loops = "".join(
+        f'  axis-{i}:\n    plant: "{i + 2}/(s*(s + {i + 1}))"\n    controller: K\n'
+        f"    gain: {{symbol: K, nominal: 1}}\n"
+        for i in range(30)
+    )
+    (tmp_path / "axes.yaml").write_text(f"speclint: 1\nloops:\n{loops}")
+    args = ("check", "axes.yaml", "--no-cache", "--format", "json")
+    used, code = _probe(tmp_path, *args, "--jobs", "2", "-o", "parallel.json")
+    assert (used, code) == ([], 0)
+    assert _probe(tmp_path, *args, "--jobs", "1", "-o", "serial.json") == (sorted(HEAVY[:2]), 0)
+    parallel = json.loads((tmp_path / "parallel.json").read_text())
+    assert parallel == json.loads((tmp_path / "serial.json").read_text())
+    assert [loop["type"] for loop in parallel["loops"]] == [1] * 30  # one integrator each
