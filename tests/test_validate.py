@@ -2,7 +2,13 @@
 
 from __future__ import annotations
 
-from conftest import findings_of
+import yaml
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from conftest import REPO, findings_of
+
+EXAMPLES = REPO / "examples"
 
 SPEC = """\
 speclint: 1
@@ -152,3 +158,63 @@ def test_an_error_in_one_requirement_leaves_the_others_checked(speclint):
     assert sorted(run.codes) == ["SL204", "SL311"], findings_of(run)
     statuses = {r["id"]: r["status"] for r in run.report["requirements"]}
     assert statuses["R-1"] == "invalid"
+
+
+# -- the validator's form of the schema ---------------------------------------------------
+
+
+def _errors(validator, doc):
+    """What speclint's messages are made of: place, keyword, jsonschema's words, and the
+    title and description of the schema the error was raised in."""
+    return sorted(
+        (
+            list(e.absolute_path),
+            e.validator,
+            e.message,
+            e.schema.get("title") if isinstance(e.schema, dict) else None,
+            e.schema.get("description") if isinstance(e.schema, dict) else None,
+        )
+        for e in validator.iter_errors(doc)
+    )
+
+
+@settings(max_examples=80, deadline=None)
+@given(data=st.data())
+def test_the_inlined_schema_judges_as_the_schema_as_written(data):
+    # speclint validates against its schema with every $ref replaced by its definition
+    # (faster); jsonschema's Draft 2020-12 validator resolving the $refs of the schema as
+    # written (with speclint's own `pattern` keyword) is the reference. Both must raise the
+    # same errors on documents broken in random ways (the demo's documents with keys
+    # dropped, added or retyped).
+    from jsonschema import Draft202012Validator, validators
+
+    from speclint.validate import _pattern, _validator, spec_schema
+
+    name = data.draw(st.sampled_from(sorted(p.name for p in EXAMPLES.glob("*.yaml"))))
+    doc = yaml.safe_load((EXAMPLES / name).read_text(encoding="utf-8"))
+    for _ in range(data.draw(st.integers(1, 4))):
+        slots = list(_slots(doc))
+        if not slots:
+            break
+        parent, key = data.draw(st.sampled_from(slots))
+        change = data.draw(st.sampled_from(["drop", "retype", "add"]))
+        if change == "drop" and isinstance(parent, dict):
+            del parent[key]
+        elif change == "retype":
+            parent[key] = data.draw(st.sampled_from([None, 7, -1.5, "x", [], {}, True]))
+        elif isinstance(parent[key], dict):
+            parent[key]["unknown_key"] = 1
+    as_written = validators.extend(Draft202012Validator, {"pattern": _pattern})(spec_schema())
+    assert _errors(_validator(), doc) == _errors(as_written, doc)
+
+
+def _slots(node):
+    """Every (container, key or index) in a parsed document."""
+    if isinstance(node, dict):
+        for key, value in node.items():
+            yield node, key
+            yield from _slots(value)
+    elif isinstance(node, list):
+        for i, value in enumerate(node):
+            yield node, i
+            yield from _slots(value)
