@@ -186,3 +186,17 @@ def test_square_free_part_and_coprimality_match_sympy(
     assert part.LC() > 0
     assert part.primitive()[0] == 1
     assert part.monic() == p_poly.sqf_part().monic()
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    st.lists(st.integers(-(10**9), 10**9), min_size=2, max_size=14).filter(lambda p: p[0] != 0),
+    st.integers(0, 3),
+)
+def test_the_guides_are_numpys_roots(p, zeros):
+    # The guesses come from the companion matrix built without numpy.roots' checks; they
+    # must be numpy.roots' own (numpy is the reference), bit for bit, zero roots included.
+    import numpy as np
+
+    p = p + [0] * zeros
+    assert realroots._approx_roots(p) == [complex(z) for z in np.roots([float(c) for c in p])]
