@@ -201,35 +201,34 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
         if hit is None:
             work.append((len(out) - 1, loop, mine, key))
     jobs = options.jobs if options.jobs > 0 else default_jobs(len(work))
-
-    def keep(i: int, analysed: Analysed) -> None:
-        # Written as each loop is done, while the workers go on with the others.
-        key = work[i][3]
-        if cache is not None and key is not None and not _has_internal_error(analysed):
-            cache.put(key, *analysed)
-
-    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs, keep)
+    # Absolute: a worker from the fork server has the working folder of when it started.
+    folder = cache.folder.absolute() if cache is not None else None
+    where = [(folder, key) if folder is not None and key is not None else None for *_, key in work]
+    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs, where)
     for (slot, _, _, _), analysed in zip(work, done, strict=True):
         out[slot] = analysed
     return [a for a in out if a is not None]
 
 
+# Where a loop's analysis is kept: the cache folder and the entry's key.
+Keep = tuple[Path, str] | None
+
+
 def _run(
     tasks: list[tuple[Loop, list[Requirement]]],
     jobs: int,
-    keep: Callable[[int, Analysed], None] | None = None,
+    keep: list[Keep] | None = None,
 ) -> list[Analysed]:
     """analyse_loop on every task, in worker processes when jobs > 1; a file whose loops keep
     running out of budget has its remaining loops skipped (see MAX_EXPIRED_PER_FILE).
-    ``keep(i, result)`` is called as each task's result arrives."""
+    Each result is written to the cache as ``keep[i]`` says, by the process that made it."""
+    keep = keep if keep is not None else [None] * len(tasks)
     done: list[Analysed | None] = [None] * len(tasks)
     expired: dict[str, int] = {}
 
     def record(i: int, analysed: Analysed) -> bool:
         """Keep the result; True when its file has now used up its allowance."""
         done[i] = analysed
-        if keep is not None:
-            keep(i, analysed)
         if any(f.rule == "SL407" for f in analysed[2]):
             path = tasks[i][0].location.path
             expired[path] = expired.get(path, 0) + 1
@@ -244,7 +243,9 @@ def _run(
         # each worker its own copy of their pages (copy-on-write).
         pool = ProcessPoolExecutor(jobs, mp_context=worker_context(), initializer=gc.freeze)
         with pool:
-            futures = {pool.submit(analyse_loop, task): i for i, task in enumerate(tasks)}
+            futures = {
+                pool.submit(analyse_and_keep, task, keep[i]): i for i, task in enumerate(tasks)
+            }
             for future in as_completed(futures):
                 if future.cancelled():
                     continue
@@ -257,7 +258,7 @@ def _run(
     else:
         for i, task in enumerate(tasks):
             if expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
-                record(i, analyse_loop(task))
+                record(i, analyse_and_keep(task, keep[i]))
     return [d if d is not None else _skipped(*tasks[i]) for i, d in enumerate(done)]
 
 
@@ -339,6 +340,16 @@ def usable_cores() -> int:
 
 def _has_internal_error(analysed: Analysed) -> bool:
     return any(f.rule == "SL001" or f.rule == "SL407" for f in analysed[2])
+
+
+def analyse_and_keep(task: tuple[Loop, list[Requirement]], keep: Keep) -> Analysed:
+    """analyse_loop, and the result written to the cache (unless it failed): in a worker,
+    so the process collecting results has nothing to encode or write."""
+    analysed = analyse_loop(task)
+    if keep is not None and not _has_internal_error(analysed):
+        folder, key = keep
+        Cache(folder).put(key, *analysed)
+    return analysed
 
 
 def analyse_loop(task: tuple[Loop, list[Requirement]]) -> Analysed:

@@ -223,6 +223,23 @@ def test_two_workers_give_the_serial_answer(tmp_path, monkeypatch):
     assert gc.get_freeze_count() == 0
 
 
+def test_workers_keep_their_answers_in_the_run_s_own_cache(tmp_path, monkeypatch):
+    # The workers write the entries; they come from a fork server that may have been
+    # started in another working folder (by an earlier run of this process).
+    entries = []
+    for name in ("first", "second"):
+        folder = tmp_path / name
+        folder.mkdir()
+        (folder / "axes.yaml").write_text(_loops_file(4))
+        monkeypatch.chdir(folder)
+        code, cold = _check("axes.yaml", "--jobs", "2")
+        entries.append(sorted(p.name for p in (folder / ".speclint_cache").rglob("*.json")))
+        assert _check("axes.yaml", "--jobs", "2") == (code, cold)
+    # One entry per loop and one for the file, in each run's own folder.
+    assert [len(e) for e in entries] == [5, 5]
+    assert entries[0] == entries[1]  # the same files and loops: the same keys
+
+
 def test_workers_are_started_early_only_for_many_loops_read_afresh(monkeypatch):
     from multiprocessing import forkserver
 
