@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import sys
+from collections.abc import Callable
 
 
 def forget() -> None:
@@ -13,15 +14,26 @@ def forget() -> None:
     worker that analyses hundreds of loops calls this after each one, so its memory stays
     that of one loop's analysis. Results do not depend on it.
     """
-    for name in (
-        "speclint.analysis.gainset",
-        "speclint.analysis.margins",
-        "speclint.analysis.steady",
-    ):
+    for clear in _clearers():
+        clear()
+
+
+_MEMOISING = ("speclint.analysis.gainset", "speclint.analysis.margins", "speclint.analysis.steady")
+_found: list[Callable[[], None]] = []
+_searched: set[str] = set()
+
+
+def _clearers() -> list[Callable[[], None]]:
+    """The cache_clear of every memoised function of the modules loaded so far (looked up
+    once per module: a walk over a module's names for every loop costs more than the
+    clearing)."""
+    for name in _MEMOISING:
         module = sys.modules.get(name)
-        if module is None:
+        if module is None or name in _searched:
             continue
+        _searched.add(name)
         for value in vars(module).values():
             clear = getattr(value, "cache_clear", None)
             if callable(clear):
-                clear()
+                _found.append(clear)
+    return _found
