@@ -13,7 +13,7 @@ import os
 import signal
 import threading
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -237,28 +237,33 @@ def _run(
 
     if jobs > 1 and len(tasks) > 1:
         from concurrent.futures import ProcessPoolExecutor, as_completed
+        from concurrent.futures.process import BrokenProcessPool
 
-        # gc.freeze as each worker starts: the cycle collector then leaves the objects
-        # inherited from the fork server alone, instead of writing to them and so giving
-        # each worker its own copy of their pages (copy-on-write).
-        pool = ProcessPoolExecutor(jobs, mp_context=worker_context(), initializer=gc.freeze)
-        with pool:
-            futures = {
-                pool.submit(analyse_and_keep, task, keep[i]): i for i, task in enumerate(tasks)
-            }
-            for future in as_completed(futures):
-                if future.cancelled():
-                    continue
-                i = futures[future]
-                if record(i, future.result()):
-                    path = tasks[i][0].location.path
-                    for other, j in futures.items():
-                        if tasks[j][0].location.path == path:
-                            other.cancel()  # only those not yet started; the rest finish
-    else:
-        for i, task in enumerate(tasks):
-            if expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
-                record(i, analyse_and_keep(task, keep[i]))
+        try:
+            # gc.freeze as each worker starts: the cycle collector then leaves the objects
+            # inherited from the fork server alone, instead of writing to them and so
+            # giving each worker its own copy of their pages (copy-on-write).
+            pool = ProcessPoolExecutor(jobs, mp_context=worker_context(), initializer=gc.freeze)
+            with pool:
+                futures = {
+                    pool.submit(analyse_and_keep, task, keep[i]): i for i, task in enumerate(tasks)
+                }
+                for future in as_completed(futures):
+                    if future.cancelled():
+                        continue
+                    i = futures[future]
+                    if record(i, future.result()):
+                        path = tasks[i][0].location.path
+                        for other, j in futures.items():
+                            if tasks[j][0].location.path == path:
+                                other.cancel()  # only those not yet started; the rest finish
+        except (OSError, BrokenProcessPool):
+            # No workers to be had (processes refused), or one died (killed, out of
+            # memory): the loops without an answer yet are analysed below, in this process.
+            pass
+    for i, task in enumerate(tasks):
+        if done[i] is None and expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
+            record(i, analyse_and_keep(task, keep[i]))
     return [d if d is not None else _skipped(*tasks[i]) for i, d in enumerate(done)]
 
 
@@ -316,17 +321,20 @@ class _EarlyWorkers:
         self.started = False
 
     def saw(self, spec: SpecFile) -> None:
+        """Count the loops of a file read afresh; start the server once there are enough."""
         if self.started or self.jobs == 1:
             return
         self.loops += len(spec.loops)
         enough = self.loops >= (2 if self.jobs > 1 else PARALLEL_FROM)
         if enough and (self.jobs > 1 or usable_cores() > 1):
             self.started = True
-            context = worker_context()
-            if context.get_start_method() == "forkserver":
-                from multiprocessing import forkserver
+            # Should it fail, the pool meets the same failure later and the loops are
+            # analysed in this process (see _run): nothing to report here.
+            with suppress(OSError):
+                if worker_context().get_start_method() == "forkserver":
+                    from multiprocessing import forkserver
 
-                forkserver.ensure_running()
+                    forkserver.ensure_running()
 
 
 def usable_cores() -> int:

@@ -9,6 +9,7 @@ from __future__ import annotations
 import gc
 import io
 import json
+import multiprocessing
 import os
 import shutil
 import subprocess
@@ -221,6 +222,38 @@ def test_two_workers_give_the_serial_answer(tmp_path, monkeypatch):
     # Workers freeze what they inherit from the fork server, never this process's objects:
     # a process that goes on (this test run) goes on collecting them.
     assert gc.get_freeze_count() == 0
+
+
+def test_without_workers_the_loops_are_analysed_in_the_run_itself(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "axes.yaml").write_text(_loops_file(6))
+    serial = _check("axes.yaml", "--no-cache", "--jobs", "1")
+
+    def refused():
+        raise OSError(11, "Resource temporarily unavailable")
+
+    monkeypatch.setattr(speclint.pipeline, "worker_context", refused)
+    assert _check("axes.yaml", "--no-cache", "--jobs", "2") == serial
+
+
+def test_a_worker_that_dies_costs_no_answer(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "axes.yaml").write_text(_loops_file(6))
+    serial = _check("axes.yaml", "--no-cache", "--jobs", "1")
+    from speclint import judge
+
+    real, parent = judge.judge_loop, os.getpid()
+
+    def dies_in_a_worker(loop, requirements):
+        if os.getpid() != parent and loop.name == "axis-3":
+            os._exit(9)  # as the out-of-memory killer would end it
+        return real(loop, requirements)
+
+    monkeypatch.setattr(judge, "judge_loop", dies_in_a_worker)
+    # Forked from this process, so that the workers see the stand-in.
+    fork = multiprocessing.get_context("fork")
+    monkeypatch.setattr(speclint.pipeline, "worker_context", lambda: fork)
+    assert _check("axes.yaml", "--no-cache", "--jobs", "2") == serial
 
 
 def test_workers_keep_their_answers_in_the_run_s_own_cache(tmp_path, monkeypatch):
