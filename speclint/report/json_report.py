@@ -138,5 +138,9 @@ def render(result: RunResult, settings: Settings) -> str:
     return "\n".join(lines) + "\n"
 
 
+# One encoder for every record: json.dumps with options builds a new one per call.
+_ENCODER = json.JSONEncoder(ensure_ascii=False, allow_nan=False)
+
+
 def _dumps(value: Any) -> str:
-    return json.dumps(value, ensure_ascii=False, allow_nan=False)
+    return _ENCODER.encode(value)
