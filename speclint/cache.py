@@ -234,15 +234,29 @@ def _to_json(value: Any) -> Any:
     the spec model as its fields with its class name (read back by _revive); a result
     record as the dict of its fields (json calls this again for records inside it; a
     tenth of the cost of dataclasses.asdict, which deep-copies every value first)."""
-    if isinstance(value, Fraction):
+    kind = type(value)
+    if kind is Location:  # nine records in ten: the places of keys
+        return {
+            "path": value.path,
+            "line": value.line,
+            "column": value.column,
+            _RECORD_TAG: "Location",
+        }
+    if kind is Fraction:
         return {_FRACTION_TAG: [value.numerator, value.denominator]}
-    if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        fields = {f.name: getattr(value, f.name) for f in dataclasses.fields(value)}
-        kind = type(value)
-        if _MODEL.get(kind.__name__) is kind:
-            fields[_RECORD_TAG] = kind.__name__
-        return fields
-    raise TypeError(f"{type(value).__name__} is not kept in the cache")
+    names = _FIELD_NAMES.get(kind)
+    if names is None:
+        if not dataclasses.is_dataclass(value) or isinstance(value, type):
+            raise TypeError(f"{kind.__name__} is not kept in the cache")
+        names = _FIELD_NAMES[kind] = tuple(f.name for f in dataclasses.fields(value))
+    fields = {name: getattr(value, name) for name in names}
+    if _MODEL.get(kind.__name__) is kind:
+        fields[_RECORD_TAG] = kind.__name__
+    return fields
+
+
+# The field names of each record class met so far (dataclasses.fields is slow to ask).
+_FIELD_NAMES: dict[type, tuple[str, ...]] = {}
 
 
 def _revive(d: dict[str, Any]) -> Any:
