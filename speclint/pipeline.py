@@ -43,12 +43,13 @@ def run(config: Config, given: list[str], cwd: Path, options: Options | None = N
     """Check the spec files that `given` (or the configuration) names."""
     options = options or Options()
     cache = Cache(config.root / config.cache_dir) if options.use_cache else None
-    early = _EarlyWorkers(options.jobs)
-    result, specs, found = read_specs(config, given, cwd, cache, early.saw)
-    for loop_result, req_results, loop_findings in _analyse_all(found, config, options):
+    fresh = FreshFiles(options.jobs, cache)
+    result, specs, found = read_specs(config, given, cwd, cache, fresh)
+    for loop_result, req_results, loop_findings in _analyse_all(found, config, options, fresh.keep):
         result.loops.append(loop_result)
         result.requirements.extend(req_results)
         result.findings.extend(loop_findings)
+    fresh.keep()  # when no loop was analysed
     analysed = {r.id for r in result.requirements}
     for req in found.requirements:
         if req.id not in analysed:
@@ -78,12 +79,12 @@ def read_specs(
     given: list[str],
     cwd: Path,
     cache: Cache | None = None,
-    read_afresh: Callable[[SpecFile], None] | None = None,
+    fresh: FreshFiles | None = None,
 ) -> tuple[RunResult, list[SpecFile], trace.Index]:
     """Load, validate, build and index the spec files; nothing analysed yet.
 
-    The result holds the files read and their findings so far. ``read_afresh(spec)`` is
-    called for each file that was not in the cache, as soon as it is built.
+    The result holds the files read and their findings so far. A file not in the cache
+    is kept there at once, or handed to `fresh` (which keeps it later) where given.
     """
     files, empty = spec_files(config, given, cwd)
     result = RunResult(files=[], findings=[])
@@ -93,7 +94,7 @@ def read_specs(
     for path in files:
         shown = display_path(path, cwd)
         result.files.append(shown)
-        spec = _read_one(path, shown, result, cache, read_afresh)
+        spec = _read_one(path, shown, result, cache, fresh)
         if spec is not None:
             specs.append(spec)
     return result, specs, trace.index(specs, result.findings)
@@ -104,7 +105,7 @@ def _read_one(
     shown: str,
     result: RunResult,
     cache: Cache | None = None,
-    read_afresh: Callable[[SpecFile], None] | None = None,
+    fresh: FreshFiles | None = None,
 ) -> SpecFile | None:
     try:
         size = path.stat().st_size
@@ -118,9 +119,12 @@ def _read_one(
     try:
         key = file_key(shown, raw) if cache is not None else None
         known = _known_file(raw, key, cache)
-        found, spec, text = known if known is not None else _read_afresh(shown, raw, key, cache)
-        if known is None and spec is not None and read_afresh is not None:
-            read_afresh(spec)
+        found, spec, text = known if known is not None else _read_afresh(shown, raw)
+        if known is None:
+            if fresh is not None:
+                fresh.add(key, found, spec)
+            elif cache is not None and key is not None:
+                cache.put_file(key, found, spec)
         result.findings.extend(found)
         if text is not None:
             result.sources[shown] = text
@@ -149,8 +153,8 @@ def _known_file(raw: bytes, key: str | None, cache: Cache | None) -> FileRead | 
     return found, spec, text
 
 
-def _read_afresh(shown: str, raw: bytes, key: str | None, cache: Cache | None) -> FileRead:
-    """Load, validate and build one file's bytes (and keep the outcome in the cache)."""
+def _read_afresh(shown: str, raw: bytes) -> FileRead:
+    """Load, validate and build one file's bytes."""
     loaded = read_spec(shown, raw)
     doc = loaded.document
     if doc is None:
@@ -160,8 +164,6 @@ def _read_afresh(shown: str, raw: bytes, key: str | None, cache: Cache | None) -
     if buildable(doc):
         spec, built = build(doc)
         found += built
-    if cache is not None and key is not None:
-        cache.put_file(key, found, spec)
     return found, spec, doc.text
 
 
@@ -184,8 +186,14 @@ LOOP_BUDGET_S = 20.0
 MAX_EXPIRED_PER_FILE = 3
 
 
-def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[Analysed]:
-    """Every loop's figures and verdicts, from the cache where it has them, in loop order."""
+def _analyse_all(
+    found: trace.Index,
+    config: Config,
+    options: Options,
+    meanwhile: Callable[[], None] | None = None,
+) -> list[Analysed]:
+    """Every loop's figures and verdicts, from the cache where it has them, in loop order;
+    `meanwhile` is called once the loops to analyse are under way."""
     cache = Cache(config.root / config.cache_dir) if options.use_cache else None
     work: list[tuple[int, Loop, list[Requirement], str | None]] = []
     out: list[Analysed | None] = []
@@ -204,7 +212,7 @@ def _analyse_all(found: trace.Index, config: Config, options: Options) -> list[A
     # Absolute: a worker from the fork server has the working folder of when it started.
     folder = cache.folder.absolute() if cache is not None else None
     where = [(folder, key) if folder is not None and key is not None else None for *_, key in work]
-    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs, where)
+    done = _run([(loop, mine) for _, loop, mine, _ in work], jobs, where, meanwhile)
     for (slot, _, _, _), analysed in zip(work, done, strict=True):
         out[slot] = analysed
     return [a for a in out if a is not None]
@@ -218,10 +226,12 @@ def _run(
     tasks: list[tuple[Loop, list[Requirement]]],
     jobs: int,
     keep: list[Keep] | None = None,
+    meanwhile: Callable[[], None] | None = None,
 ) -> list[Analysed]:
     """analyse_loop on every task, in worker processes when jobs > 1; a file whose loops keep
     running out of budget has its remaining loops skipped (see MAX_EXPIRED_PER_FILE).
-    Each result is written to the cache as ``keep[i]`` says, by the process that made it."""
+    Each result is written to the cache as ``keep[i]`` says, by the process that made it;
+    `meanwhile` is called while the workers are busy, or before the loops without them."""
     keep = keep if keep is not None else [None] * len(tasks)
     done: list[Analysed | None] = [None] * len(tasks)
     expired: dict[str, int] = {}
@@ -248,6 +258,8 @@ def _run(
                 futures = {
                     pool.submit(analyse_and_keep, task, keep[i]): i for i, task in enumerate(tasks)
                 }
+                if meanwhile is not None:
+                    meanwhile()
                 for future in as_completed(futures):
                     if future.cancelled():
                         continue
@@ -261,6 +273,8 @@ def _run(
             # No workers to be had (processes refused), or one died (killed, out of
             # memory): the loops without an answer yet are analysed below, in this process.
             pass
+    if meanwhile is not None:
+        meanwhile()  # again after workers: FreshFiles.keep writes each entry once
     for i, task in enumerate(tasks):
         if done[i] is None and expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
             record(i, analyse_and_keep(task, keep[i]))
@@ -306,25 +320,43 @@ def worker_context() -> BaseContext:
     return context
 
 
-class _EarlyWorkers:
-    """Starts the fork server while the files are still being read.
+class FreshFiles:
+    """What a run does with the files it had to read afresh (not in the cache).
 
-    Its imports then run on another core while this process reads, parses and validates:
-    on a cold run over many loops that hides most of the import's cost. Started once the
-    files read afresh hold enough loops to be analysed in parallel (a guess made before
-    the cache is asked about the loops: a wrong guess costs an idle process, not time).
+    It starts the fork server as soon as they hold enough loops to be analysed in parallel,
+    so that its imports run on another core while this process goes on reading, parsing
+    and validating: on a cold run over many loops that hides most of their cost (a guess
+    made before the cache is asked about the loops: a wrong guess costs an idle process,
+    not time). And it keeps their cache entries until `keep` is called, which the
+    analysis does once its workers are busy: encoding a file's built model is a good part
+    of reading it, and then it no longer holds the workers up.
     """
 
-    def __init__(self, jobs: int) -> None:
+    def __init__(self, jobs: int, cache: Cache | None) -> None:
         self.jobs = jobs
+        self.cache = cache
         self.loops = 0
         self.started = False
+        self.pending: list[tuple[str, list[Finding], SpecFile | None]] = []
 
-    def saw(self, spec: SpecFile) -> None:
-        """Count the loops of a file read afresh; start the server once there are enough."""
+    def add(self, key: str | None, found: list[Finding], spec: SpecFile | None) -> None:
+        """A file read afresh: its findings, its model (None when it has errors)."""
+        if self.cache is not None and key is not None:
+            self.pending.append((key, found, spec))
+        if spec is not None:
+            self._count(len(spec.loops))
+
+    def keep(self) -> None:
+        """Write the files' cache entries (those not written yet)."""
+        pending, self.pending = self.pending, []
+        if self.cache is not None:
+            for key, found, spec in pending:
+                self.cache.put_file(key, found, spec)
+
+    def _count(self, loops: int) -> None:
         if self.started or self.jobs == 1:
             return
-        self.loops += len(spec.loops)
+        self.loops += loops
         enough = self.loops >= (2 if self.jobs > 1 else PARALLEL_FROM)
         if enough and (self.jobs > 1 or usable_cores() > 1):
             self.started = True

@@ -282,21 +282,21 @@ def test_workers_are_started_early_only_for_many_loops_read_afresh(monkeypatch):
     monkeypatch.setattr(forkserver, "ensure_running", lambda: started.append(True))
     monkeypatch.setattr(speclint.pipeline, "usable_cores", lambda: 2)
     ten = SpecFile(path="a.yaml", loops=(object(),) * 10)  # only their number counts here
-    early = speclint.pipeline._EarlyWorkers(0)
-    early.saw(ten)
-    early.saw(ten)
+    early = speclint.pipeline.FreshFiles(0, None)
+    early.add(None, [], ten)
+    early.add(None, [], ten)
     assert started == []  # 20 loops: they are analysed in this process
-    early.saw(ten)
-    early.saw(ten)
+    early.add(None, [], ten)
+    early.add(None, [], ten)
     assert started == [True]  # once, at 24 or more
-    serial = speclint.pipeline._EarlyWorkers(1)
+    serial = speclint.pipeline.FreshFiles(1, None)
     for _ in range(10):
-        serial.saw(ten)
+        serial.add(None, [], ten)
     assert started == [True]
     monkeypatch.setattr(speclint.pipeline, "usable_cores", lambda: 1)
-    one_core = speclint.pipeline._EarlyWorkers(0)
+    one_core = speclint.pipeline.FreshFiles(0, None)
     for _ in range(10):
-        one_core.saw(ten)
+        one_core.add(None, [], ten)
     assert started == [True]
 
 
