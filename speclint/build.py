@@ -80,8 +80,7 @@ def _expression(doc: Document, path: Path, text: str | None) -> Expression | Non
     location = doc.location(path)
     line0 = (location.line or 1) - 1
     col0 = (location.column or 1) - 1
-    source_lines = doc.text.splitlines()
-    source = source_lines[line0][col0:] if line0 < len(source_lines) else ""
+    source = doc.line(line0)[col0:]
     if source.startswith(text):
         return Expression(text, location)
     quote = source[:1]

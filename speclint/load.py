@@ -62,6 +62,13 @@ class Document:
     plain_text: dict[Path, str] = field(default_factory=dict)
     # Paths where loading already reported a problem; later stages stay quiet there.
     flagged: set[Path] = field(default_factory=set)
+    _lines: list[str] | None = field(default=None, repr=False, compare=False)
+
+    def line(self, index: int) -> str:
+        """The text of a line (0-based), "" past the end; the text is split once."""
+        if self._lines is None:
+            self._lines = self.text.splitlines()
+        return self._lines[index] if 0 <= index < len(self._lines) else ""
 
     def location(self, path: Path, key: bool = False) -> Location:
         """The place of the value at `path` (or of its key), else of its nearest parent."""
