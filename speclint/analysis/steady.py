@@ -313,12 +313,101 @@ def _value(limit: _Limit) -> sympy.Expr:
         return ZERO
     if limit.kind == "inf":
         return INF
+    if limit.a.is_ground and limit.b.is_ground:
+        # A number (every limit at the nominal gain): no gcd to take, no expression to build.
+        return sympy.QQ.to_sympy(limit.a.LC / limit.b.LC)
     num, den = limit.a.cancel(limit.b)
     if den.is_ground:
-        if num.is_ground:  # a number (every limit at the nominal gain): no expression to build
+        if num.is_ground:
             return sympy.QQ.to_sympy(num.LC / den.LC)
         return num.as_expr() / sympy.QQ.to_sympy(den.LC)
     return num.as_expr() / den.as_expr()
+
+
+# -- exact texts ----------------------------------------------------------------------------
+#
+# A figure in the gain is shown as sympy's str printer writes the expression _value builds
+# (sympy.sstr, the form the reports have always used), but written here straight from the
+# coefficients: building that expression and printing it cost about a millisecond a figure
+# on a cold sympy cache, the larger part of the steady-state cost of a loop. The shapes are
+# few: a polynomial over a number, or a ratio of two polynomials in lowest terms. sympy's
+# rules for them, followed below: the terms of a sum by descending power, except that a
+# positive constant leads a sum of two terms whose other term has a negative coefficient; a
+# product shows its sign first, then the numerator's factors (number first), then "/" and
+# the denominator's, in parentheses when there are several; a sum inside a product is in
+# parentheses. tests/test_steady.py compares these texts with sympy.sstr on random ratios.
+
+
+def constant_text(ss: SteadyState, which: str, name: str) -> str:
+    """Kp, Kv or Ka (``which``: "kp", "kv", "ka") in the gain, written with the gain called
+    ``name``, exactly as ``sympy.sstr`` writes the ``kp_expr``... expression ("oo" if
+    infinite)."""
+    if which not in CONSTANTS:
+        raise ValueError(f"unknown error constant {which!r}; expected one of {CONSTANTS}")
+    return limit_text(ss.generic_constants[_ORDER[which]], name)
+
+
+def limit_text(limit: _Limit, name: str) -> str:
+    """``sympy.sstr(_value(limit))`` with K written as ``name``, without building the
+    expression."""
+    if limit.kind == "zero":
+        return "0"
+    if limit.kind == "inf":
+        return "oo"
+    num, den = limit.a.cancel(limit.b)
+    if den.is_ground:
+        lead = den.LC
+        return _sum_text([(e, c / lead) for (e,), c in num.terms()], name)
+    top, coefficient = _factor_text(num.terms(), name)
+    den_terms = den.terms()
+    bottom, below = _factor_text(den_terms, name)
+    assert bottom is not None  # a polynomial that is not a number has a factor in K
+    coefficient = coefficient / below
+    if coefficient == 1 and top is None and len(den_terms) == 1 and den_terms[0][0][0] > 1:
+        return f"{name}**(-{den_terms[0][0][0]})"  # a lone power, not a product
+    sign = "-" if coefficient < 0 else ""
+    p, q = abs(int(coefficient.numerator)), int(coefficient.denominator)
+    above = ([str(p)] if p != 1 else []) + ([top] if top is not None else [])
+    under = ([str(q)] if q != 1 else []) + [bottom]
+    text = sign + ("*".join(above) if above else "1")
+    return f"{text}/{under[0]}" if len(under) == 1 else f"{text}/({'*'.join(under)})"
+
+
+def _factor_text(terms: list[tuple[tuple[int], Any]], name: str) -> tuple[str | None, Any]:
+    """A polynomial as a factor of a product: its text without the number in front (None
+    when it is a number), and that number (1 for a sum)."""
+    if len(terms) > 1:
+        return f"({_sum_text([(e, c) for (e,), c in terms], name)})", sympy.QQ(1)
+    ((power,), c) = terms[0]
+    return (_power_text(name, power) if power else None), c
+
+
+def _power_text(name: str, power: int) -> str:
+    return name if power == 1 else f"{name}**{power}"
+
+
+def _sum_text(terms: list[tuple[int, Any]], name: str) -> str:
+    """A polynomial from its (power, non-zero coefficient) terms by descending power."""
+    if not terms:
+        return "0"
+    if len(terms) == 2 and terms[1][0] == 0 and terms[1][1] > 0 and terms[0][1] < 0:
+        terms = [terms[1], terms[0]]  # sympy writes 2 - K, not -K + 2
+    texts = [_term_text(power, c, name) for power, c in terms]
+    out = texts[0]
+    for text in texts[1:]:
+        out += f" - {text[1:]}" if text.startswith("-") else f" + {text}"
+    return out
+
+
+def _term_text(power: int, c: Any, name: str) -> str:
+    """c·name**power (c a non-zero rational)."""
+    p, q = int(c.numerator), int(c.denominator)
+    if not power:
+        return str(p) if q == 1 else f"{p}/{q}"
+    sign = "-" if p < 0 else ""
+    x = _power_text(name, power)
+    text = sign + (x if abs(p) == 1 else f"{abs(p)}*{x}")
+    return text if q == 1 else f"{text}/{q}"
 
 
 # -- figures at the nominal gain ----------------------------------------------------------
