@@ -23,7 +23,9 @@ from speclint.analysis.gainset import INF, ZERO, GainSet, Interval, to_float
 from speclint.analysis.stability import (
     EPS,
     _first_column_parts,
+    _proven_irreducible,
     hidden_modes,
+    irreducible_parts,
     is_hurwitz,
     routh_table,
     stable_gains,
@@ -604,3 +606,52 @@ def test_plant_zero_against_feedback_poles_on_the_axis() -> None:
     )
     roots = np.roots(NumericLoop(loop).char(3.0))
     assert np.sum(np.abs(np.abs(roots) - 2) < 1e-6) >= 2
+
+
+# -- irreducibility shown modulo small primes ----------------------------------------------
+
+_small = st.integers(-60, 60)
+_lead = st.integers(1, 10**6)
+
+
+@st.composite
+def cubics_and_quartics(draw: st.DrawFn) -> list[int]:
+    """Integer cubics and quartics: random ones (mostly irreducible) and products of
+    smaller factors (reducible), times a random content."""
+    kind = draw(st.sampled_from(["random3", "random4", "1x2", "1x3", "2x2", "1x1x2"]))
+    if kind.startswith("random"):
+        coeffs = [draw(_lead)] + [draw(st.integers(-(10**6), 10**6)) for _ in range(int(kind[-1]))]
+    else:
+        p = sympy.Poly(1, S)
+        for degree in (int(d) for d in kind.split("x")):
+            factor = [draw(st.integers(1, 40))] + [draw(_small) for _ in range(degree)]
+            p = p * sympy.Poly(factor, S)
+        coeffs = [int(c) for c in p.all_coeffs()]
+    assume(coeffs[-1] != 0)  # the callers take the root 0 out first
+    return [c * draw(st.sampled_from([1, -1, 6, 10**9])) for c in coeffs]
+
+
+@settings(max_examples=100, deadline=None)
+@given(cubics_and_quartics())
+def test_irreducible_parts_against_sympy_factoring(p: list[int]) -> None:
+    # Reference: sympy's factorization over the integers (factor_list, Zassenhaus).
+    _, factors = sympy.Poly(p, S).factor_list()
+    irreducible = len(factors) == 1 and factors[0][1] == 1
+    if _proven_irreducible(p):
+        assert irreducible
+    expected = sorted(
+        tuple(int(c) for c in (f if f.LC() > 0 else -f).all_coeffs()) for f, _ in factors
+    )
+    assert sorted(irreducible_parts(p)) == expected
+
+
+def test_irreducibility_shown_without_factoring() -> None:
+    # x^3 − 2 is irreducible (Eisenstein at 2, common practice) and has no root mod 7 (the
+    # cubes mod 7 are 0, 1, 6). x^4 + 1 is irreducible but has a root or splits into
+    # quadratics modulo every prime (a textbook example, e.g. Dummit and Foote, Abstract
+    # Algebra, §9.4; from memory): the test cannot show it, and sympy's factoring decides.
+    assert _proven_irreducible([1, 0, 0, -2])
+    assert not _proven_irreducible([1, 0, 0, 0, 1])
+    assert irreducible_parts([1, 0, 0, 0, 1]) == [(1, 0, 0, 0, 1)]
+    assert not _proven_irreducible([1, -6, 11, -6])  # (x − 1)(x − 2)(x − 3)
+    assert irreducible_parts([2, -12, 22, -12]) == [(1, -3), (1, -2), (1, -1)]
