@@ -608,6 +608,55 @@ def test_plant_zero_against_feedback_poles_on_the_axis() -> None:
     assert np.sum(np.abs(np.abs(roots) - 2) < 1e-6) >= 2
 
 
+# Factors with known roots (common practice): whether each has a root in the closed right
+# half plane off the axis (True), only on the axis (False), or none (None).
+_MENU = {
+    S - 1: True,
+    S**2 - S + 1: True,
+    S: False,
+    S**2 + 4: False,
+    S + 2: None,
+    S**2 + S + 1: None,
+}
+
+
+@st.composite
+def blocks_with_shared_factors(draw: st.DrawFn) -> tuple[Ratio, Ratio, Ratio]:
+    def side() -> sympy.Expr:
+        picked = draw(st.lists(st.sampled_from(sorted(_MENU, key=str)), max_size=3))
+        extra = draw(st.sampled_from([1, K, S + K, 2 * K + S**2]))
+        return sympy.Mul(extra, *picked)
+
+    def block() -> Ratio:
+        return Ratio(poly(side()), poly(side() * draw(st.sampled_from([1, S + 5]))))
+
+    return block(), block(), block()
+
+
+@settings(max_examples=40, deadline=None)
+@given(blocks_with_shared_factors())
+def test_hidden_modes_against_the_two_variable_gcd(blocks: tuple[Ratio, Ratio, Ratio]) -> None:
+    # Reference: sympy's gcd of the two polynomials in (s, k) and its factorization; the
+    # factors' roots are known by construction (_MENU).
+    loop = make_loop(*blocks)
+    names = ("controller", "plant", "feedback")
+    expected = set()
+    for pole_name, pole in zip(names, blocks, strict=True):
+        for zero_name, zero in zip(names, blocks, strict=True):
+            common = sympy.Poly(pole.den.as_expr(), S, K).gcd(sympy.Poly(zero.num.as_expr(), S, K))
+            for factor, multiplicity in common.factor_list()[1]:
+                if factor.degree(K) > 0 or factor.degree(S) <= 0:
+                    continue
+                monic = sympy.Poly(factor.as_expr(), S).monic().as_expr()
+                if _MENU[monic] is not None:
+                    expected.add((zero_name, pole_name, monic, multiplicity, _MENU[monic]))
+    found = {
+        (m.zero_block, m.pole_block, m.factor.as_expr(), m.multiplicity, m.unstable)
+        for m in hidden_modes(loop)
+    }
+    assert found == expected
+
+
 # -- irreducibility shown modulo small primes ----------------------------------------------
 
 _small = st.integers(-60, 60)

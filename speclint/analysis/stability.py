@@ -885,9 +885,15 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
         ("feedback", loop.feedback),
     )
     found: list[HiddenMode] = []
-    for pole_name, pole_block in blocks:
-        for zero_name, zero_block in blocks:
-            common = _common_in_s(pole_block.den, zero_block.num)
+    if any(p.gens != (S, K) for _, block in blocks for p in (block.num, block.den)):
+        dens = nums = [_GENERAL] * len(blocks)
+    else:
+        # Each block's gain-free part once, not once for each of the nine pairs.
+        dens = [_gain_free(block.den) for _, block in blocks]
+        nums = [_gain_free(block.num) for _, block in blocks]
+    for (pole_name, pole_block), den_part in zip(blocks, dens, strict=True):
+        for (zero_name, zero_block), num_part in zip(blocks, nums, strict=True):
+            common = _common_in_s(pole_block.den, zero_block.num, den_part, num_part)
             if common is None or common.total_degree() <= 0:
                 continue
             for factor, multiplicity in common.factor_list()[1]:
@@ -902,29 +908,46 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
 
 
 _S_RING, _ = sympy.ring([S], sympy.QQ)
+_GENERAL = object()  # a polynomial in other generators: the general gcd decides
 
 
-def _common_in_s(a: sympy.Poly, b: sympy.Poly) -> sympy.Poly | None:
-    """The factors free of the gain common to a and b, with their multiplicities (as a
-    polynomial in (S, K)); None when there is none. Only those are reported, and a factor
-    f(s) divides a(s, k) = Σ a_j(s)·k^j exactly when it divides every a_j: so this is the
-    gcd of all those coefficients over Q[s], one-variable gcds instead of a two-variable
-    one. Polynomials in other generators take the general gcd."""
-    if a.gens != (S, K) or b.gens != (S, K):
-        return a.gcd(b)
-    if (a.is_ground and not a.is_zero) or (b.is_ground and not b.is_zero):
+def _gain_free(p: sympy.Poly) -> Any:
+    """The factors of p(s, k) free of the gain, with their multiplicities, as an element of
+    _S_RING (up to a constant); the ring's zero for p = 0 (it shares every factor); None
+    when there is none. A factor f(s) divides p = Σ p_j(s)·k^j exactly when it divides
+    every p_j: so this is the gcd of those coefficients over Q[s], one-variable gcds
+    instead of a two-variable one."""
+    if p.is_zero:
+        return _S_RING.zero
+    if p.is_ground:
         return None  # a non-zero constant shares no factor
-    parts: dict[tuple[int, int], dict[tuple[int], Any]] = {}
-    for which, p in enumerate((a, b)):
-        for (i, j), c in p.as_dict(native=True).items():
-            parts.setdefault((which, j), {})[(i,)] = c
+    parts: dict[int, dict[tuple[int], Any]] = {}
+    for (i, j), c in p.as_dict(native=True).items():
+        parts.setdefault(j, {})[(i,)] = c
     g = None
     for terms in parts.values():
         element = _S_RING.from_dict(terms)
         g = element if g is None else g.gcd(element)
         if g.is_ground:
             return None
-    if g is None:
+    return g
+
+
+def _common_in_s(a: sympy.Poly, b: sympy.Poly, a_part: Any, b_part: Any) -> sympy.Poly | None:
+    """The factors free of the gain common to a and b, with their multiplicities (as a
+    polynomial in (S, K)), from their gain-free parts (see _gain_free); None when there is
+    none. Polynomials in other generators take the general gcd."""
+    if a_part is _GENERAL or b_part is _GENERAL:
+        return a.gcd(b)
+    if a_part is None or b_part is None:
+        return None
+    if not a_part:
+        g = b_part
+    elif not b_part:
+        g = a_part
+    else:
+        g = a_part.gcd(b_part)
+    if not g or g.is_ground:
         return None
     return sympy.Poly.from_dict({(i, 0): c for (i,), c in g.items()}, S, K, domain=sympy.QQ)
 
