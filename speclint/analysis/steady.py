@@ -66,7 +66,7 @@ from typing import Any
 import sympy
 
 from speclint.analysis import realroots
-from speclint.analysis.algebra import K, LoopAlgebra, S
+from speclint.analysis.algebra import K, LoopAlgebra, S, from_terms
 from speclint.analysis.gainset import (
     INF,
     ZERO,
@@ -148,9 +148,6 @@ class _Quasi:
     b: _Coefficients
     delay: Fraction | None
 
-    def at(self, value: Any) -> _Quasi:
-        return _Quasi(_evaluate(self.a, value), _evaluate(self.b, value), self.delay)
-
     def coefficient(self, n: int, delay_terms: Sequence[Any]) -> _Gain:
         total = self.a[n] if n < len(self.a) else _RING.zero
         for i in range(min(n, len(self.b) - 1) + 1):
@@ -186,12 +183,8 @@ def _by_power(p: sympy.Poly) -> _Coefficients:
     return tuple(_RING.from_dict(row) if row else _RING.zero for row in rows)
 
 
-def _evaluate(coefficients: _Coefficients, value: Any) -> _Coefficients:
-    return tuple(_RING.ground_new(c.evaluate(_RING.gens[0], value)) for c in coefficients)
-
-
 def _to_poly(p: _Gain) -> sympy.Poly:
-    return sympy.Poly.from_dict(dict(p), K, domain=sympy.QQ)
+    return from_terms(dict(p), (K,))
 
 
 @functools.lru_cache(maxsize=64)
@@ -206,7 +199,10 @@ def _delay_terms(delay: Fraction | None, count: int) -> tuple[Any, ...]:
     return tuple(terms)
 
 
-def _lowest(f: _Quasi, is_zero: _ZeroTest) -> tuple[int, _Gain] | None:
+_Low = tuple[int, _Gain] | None
+
+
+def _lowest(f: _Quasi, is_zero: _ZeroTest) -> _Low:
     """Order at s = 0 and lowest coefficient of f; None when f vanishes identically."""
     limit = f.search_limit()
     terms = _delay_terms(f.delay, limit + 1)
@@ -215,6 +211,36 @@ def _lowest(f: _Quasi, is_zero: _ZeroTest) -> tuple[int, _Gain] | None:
         if not is_zero(c):
             return n, c
     if f.delay and any(not is_zero(c) for c in f.b):
+        raise AssertionError("A + B·e^{-sT} vanished beyond its order bound")  # proven above
+    return None
+
+
+# The lowest terms are looked up many times per loop (three constants, three errors, each
+# gain set and its special gains); they are found once for each quasi-polynomial of the
+# loop's series (cached like the series itself, and emptied with it by forget()).
+
+
+@functools.lru_cache(maxsize=256)
+def _generic_low(f: _Quasi) -> _Low:
+    """_lowest of f for a generic gain."""
+    return _lowest(f, _generic_zero)
+
+
+@functools.lru_cache(maxsize=256)
+def _low_at(f: _Quasi, value: Any) -> _Low:
+    """_lowest of f with the gain fixed at value (an element of QQ; None: f is free of the
+    gain). Fixing the gain commutes with the sums and products that make a coefficient, so
+    only the coefficients looked at are evaluated."""
+    if value is None:
+        return _generic_low(f)
+    gain = _RING.gens[0]
+    limit = f.search_limit()
+    terms = _delay_terms(f.delay, limit + 1)
+    for n in range(limit + 1):
+        c = f.coefficient(n, terms).evaluate(gain, value)
+        if c:
+            return n, _RING.ground_new(c)
+    if f.delay and any(c.evaluate(gain, value) for c in f.b):
         raise AssertionError("A + B·e^{-sT} vanished beyond its order bound")  # proven above
     return None
 
@@ -232,7 +258,17 @@ def _limit(f1: _Quasi, f2: _Quasi, shift: int, is_zero: _ZeroTest) -> _Limit:
     low2 = _lowest(f2, is_zero)
     if low2 is None:
         return _Limit("inf")
-    low1 = _lowest(f1, is_zero)
+    return _from_lows(_lowest(f1, is_zero), low2, shift)
+
+
+def _generic_limit(f1: _Quasi, f2: _Quasi, shift: int) -> _Limit:
+    return _from_lows(_generic_low(f1), _generic_low(f2), shift)
+
+
+def _from_lows(low1: _Low, low2: _Low, shift: int) -> _Limit:
+    """lim s→0 of s^shift·F1/F2 from the lowest terms of F1 and F2."""
+    if low2 is None:
+        return _Limit("inf")
     if low1 is None:
         return _Limit("zero")
     order = low1[0] + shift - low2[0]
@@ -253,17 +289,6 @@ class _Series:
     feedback_den: _Quasi
     controller_den: _Quasi
 
-    def at(self, value: Any) -> _Series:
-        return _Series(
-            self.nge.at(value),
-            self.dge.at(value),
-            self.char.at(value),
-            self.dist.at(value),
-            self.feedback_num.at(value),
-            self.feedback_den.at(value),
-            self.controller_den.at(value),
-        )
-
 
 @functools.lru_cache(maxsize=64)
 def _series(loop: LoopAlgebra) -> _Series:
@@ -283,13 +308,14 @@ def _series(loop: LoopAlgebra) -> _Series:
     )
 
 
-def _nominal_series(loop: LoopAlgebra) -> _Series:
-    series = _series(loop)
+def _nominal_value(loop: LoopAlgebra, series: _Series) -> Any:
+    """The nominal gain as an element of QQ; None for a loop without gain (its blocks must
+    then be free of it)."""
     if loop.nominal is None:
         if _involves_gain(series):
             raise ValueError("the loop's blocks hold the gain but the loop has no nominal gain")
-        return series
-    return series.at(_qq(loop.nominal))
+        return None
+    return _qq(loop.nominal)
 
 
 def _involves_gain(series: _Series) -> bool:
@@ -297,11 +323,9 @@ def _involves_gain(series: _Series) -> bool:
     return any(c.degree() > 0 for q in quasis for c in (*q.a, *q.b))
 
 
-def _type(series: _Series, is_zero: _ZeroTest) -> int:
-    low_d = _lowest(series.dge, is_zero)
+def _type_of(low_n: _Low, low_d: _Low) -> int:
     if low_d is None:
         return DEGENERATE_TYPE
-    low_n = _lowest(series.nge, is_zero)
     if low_n is None:
         return 0
     return max(0, low_d[0] - low_n[0])
@@ -419,20 +443,20 @@ def steady_state(loop: LoopAlgebra) -> SteadyState:
     Raises ValueError when the blocks hold the gain but the loop has no nominal value.
     """
     generic = _series(loop)
-    nominal = _nominal_series(loop)
-    z = _generic_zero
+    value = _nominal_value(loop, generic)
+    n, d, c = (_low_at(f, value) for f in (generic.nge, generic.dge, generic.char))
     return SteadyState(
-        type=_type(nominal, z),
-        kp=_value(_limit(nominal.nge, nominal.dge, 0, z)),
-        kv=_value(_limit(nominal.nge, nominal.dge, 1, z)),
-        ka=_value(_limit(nominal.nge, nominal.dge, 2, z)),
-        step_error=_value(_limit(nominal.dge, nominal.char, 0, z)),
-        ramp_error=_value(_limit(nominal.dge, nominal.char, -1, z)),
-        parabola_error=_value(_limit(nominal.dge, nominal.char, -2, z)),
+        type=_type_of(n, d),
+        kp=_value(_from_lows(n, d, 0)),
+        kv=_value(_from_lows(n, d, 1)),
+        ka=_value(_from_lows(n, d, 2)),
+        step_error=_value(_from_lows(d, c, 0)),
+        ramp_error=_value(_from_lows(d, c, -1)),
+        parabola_error=_value(_from_lows(d, c, -2)),
         generic_constants=(
-            _limit(generic.nge, generic.dge, 0, z),
-            _limit(generic.nge, generic.dge, 1, z),
-            _limit(generic.nge, generic.dge, 2, z),
+            _generic_limit(generic.nge, generic.dge, 0),
+            _generic_limit(generic.nge, generic.dge, 1),
+            _generic_limit(generic.nge, generic.dge, 2),
         ),
     )
 
@@ -451,8 +475,10 @@ def disturbance_error(loop: LoopAlgebra, magnitude: Fraction) -> sympy.Expr:
     lim s→0 of G/(1 + C·G·H·e^{−sT}) times the magnitude, at the nominal gain; signed, oo
     when it grows without bound.
     """
-    nominal = _nominal_series(loop)
-    return _scaled(_value(_limit(nominal.dist, nominal.char, 0, _generic_zero)), magnitude)
+    series = _series(loop)
+    value = _nominal_value(loop, series)
+    unit = _from_lows(_low_at(series.dist, value), _low_at(series.char, value), 0)
+    return _scaled(_value(unit), magnitude)
 
 
 def _scaled(unit: sympy.Expr, magnitude: Fraction) -> sympy.Expr:
@@ -542,7 +568,7 @@ def _gain_set(
 ) -> GainSet:
     """K > 0 where the limit of s^shift·F1/F2 passes: a ratio a/b passes where
     test(a, b) ≥ 0 (b ≠ 0), "zero" and "inf" per the two flags."""
-    generic = _limit(f1, f2, shift, _generic_zero)
+    generic = _generic_limit(f1, f2, shift)
     positive = GainSet.positive()
     if generic.kind == "ratio":
         result = where_sign(_to_poly(test(generic.a, generic.b)), positive=True, closed=True)
@@ -563,11 +589,11 @@ def _gain_set(
 def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, _Gain, Number]]:
     """Gains K > 0 where a generic lowest coefficient of F1 or F2 vanishes, each with its
     irreducible polynomial (an element of the ring) and the root in the analysis' form."""
-    low2 = _lowest(f2, _generic_zero)
+    low2 = _generic_low(f2)
     if low2 is None:
         return []  # F2 vanishes for every gain: the limit is infinite everywhere
     special = low2[1]
-    low1 = _lowest(f1, _generic_zero)
+    low1 = _generic_low(f1)
     if low1 is not None:
         special = special * low1[1]
     if special.degree() <= 0:
@@ -643,12 +669,12 @@ def why_tracking_unreachable(
         return None
     order = _reference_order(reference)
     series = _series(loop)
-    generic = _limit(series.dge, series.char, -order, _generic_zero)
+    generic = _generic_limit(series.dge, series.char, -order)
     h0 = _feedback_dc_gain(series)
     if generic.kind == "ratio":
         value = _ratio(generic) * exact(magnitude)
         return _too_large(f"the {reference} error", value, max_error) + _h_note(h0)
-    loop_type = _type(series, _generic_zero)
+    loop_type = _type_of(_generic_low(series.nge), _generic_low(series.dge))
     reason = f"type {loop_type} loop: the {reference} error is infinite for every gain"
     if h0 is not None and h0 != 1:
         return (
@@ -664,12 +690,12 @@ def why_constant_unreachable(loop: LoopAlgebra, which: str, minimum: Fraction) -
         return None
     series = _series(loop)
     name = _DISPLAY[which]
-    generic = _limit(series.nge, series.dge, _ORDER[which], _generic_zero)
+    generic = _generic_limit(series.nge, series.dge, _ORDER[which])
     if generic.kind == "ratio":
         return _too_small(name, _ratio(generic), minimum) + _h_note(_feedback_dc_gain(series))
     if which == "kp":
         return "Kp is 0 for every gain: the equivalent forward path has a zero at s = 0"
-    loop_type = _type(series, _generic_zero)
+    loop_type = _type_of(_generic_low(series.nge), _generic_low(series.dge))
     reason = f"type {loop_type} loop: {name} is 0 for every gain"
     return reason + _integrators(_ORDER[which] - loop_type)
 
@@ -681,7 +707,7 @@ def why_disturbance_unreachable(
     if not disturbance_gains(loop, magnitude, max_error).is_empty():
         return None
     series = _series(loop)
-    generic = _limit(series.dist, series.char, 0, _generic_zero)
+    generic = _generic_limit(series.dist, series.char, 0)
     if generic.kind != "ratio":
         return (
             "the output deviation after a step disturbance at the plant input grows without "
