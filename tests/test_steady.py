@@ -587,3 +587,28 @@ def test_constant_text_writes_the_constant_in_the_gain(loop: LoopAlgebra) -> Non
         value = getattr(ss, f"{key}_expr")
         expected = sympy.sstr(value.xreplace({K: sympy.Symbol("Kp")}))
         assert steady.constant_text(ss, key, "Kp") == expected
+
+
+_block_polynomial = st.dictionaries(
+    st.tuples(st.integers(0, 4), st.integers(0, 2)),
+    st.fractions(min_value=-9, max_value=9, max_denominator=5),
+    max_size=5,
+).map(
+    lambda terms: sympy.Poly.from_dict(
+        {m: c for m, c in terms.items() if c} or {(0, 0): 0}, S, K, domain=sympy.QQ
+    )
+)
+
+
+@settings(max_examples=80, deadline=None)
+@given(_block_polynomial, _block_polynomial, _block_polynomial)
+def test_lazy_product_coefficients_are_the_products(
+    p: sympy.Poly, q: sympy.Poly, r: sympy.Poly
+) -> None:
+    # Reference: sympy's Poly multiplication in (s, k), split by powers of s.
+    product = steady._product(steady._by_power(p), steady._by_power(q), steady._by_power(r))
+    expected = steady._by_power(p * q * r)
+    assert len(product) == len(expected)
+    for n in reversed(range(len(expected))):  # read out of order: later ones first
+        assert product[n] == expected[n]
+    assert list(product) == list(expected)

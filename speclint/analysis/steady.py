@@ -137,7 +137,48 @@ class SteadyState:
 # become Poly only where root finding needs it (gain sets).
 _RING, _ = sympy.ring([K], sympy.QQ)
 _Gain = Any  # an element of _RING (sympy.polys.rings.PolyElement; sympy ships no types)
-_Coefficients = tuple[_Gain, ...]
+_Coefficients = Sequence[_Gain]
+
+
+class _Product(Sequence[Any]):
+    """The coefficients of s^0, s^1, ... of a product of two polynomials in s (each given by
+    its coefficients the same way), worked out only as far as they are read: a limit at
+    s = 0 looks at the lowest few, and multiplying out the whole product cost more than the
+    rest of the steady-state figures. Over Q[K], which has no zero divisors, the degree of
+    the product is the sum of the degrees, so its length is known beforehand."""
+
+    __slots__ = ("_known", "_left", "_length", "_right")
+
+    def __init__(self, left: _Coefficients, right: _Coefficients) -> None:
+        self._left, self._right = left, right
+        self._length = len(left) + len(right) - 1 if left and right else 0
+        self._known: list[_Gain] = []
+
+    def __len__(self) -> int:
+        return self._length
+
+    def __getitem__(self, n: Any) -> Any:
+        if not isinstance(n, int) or not 0 <= n < self._length:
+            raise IndexError(n)
+        left, right, known = self._left, self._right, self._known
+        while len(known) <= n:
+            m = len(known)
+            total = _RING.zero
+            for i in range(max(0, m - len(right) + 1), min(m, len(left) - 1) + 1):
+                x = left[i]
+                if x:
+                    y = right[m - i]
+                    if y:
+                        total = total + x * y
+            known.append(total)
+        return known[n]
+
+
+def _product(*factors: _Coefficients) -> _Coefficients:
+    out = factors[0]
+    for f in factors[1:]:
+        out = _Product(out, f)
+    return out
 
 
 @dataclass(frozen=True, slots=True)
@@ -293,18 +334,18 @@ class _Series:
 @functools.lru_cache(maxsize=64)
 def _series(loop: LoopAlgebra) -> _Series:
     c, g, h = loop.controller, loop.plant, loop.feedback
-    poles = c.den * g.den * h.den
-    forward = c.num * g.num
+    nc, dc, ng, dg, nh, dh = (_by_power(p) for p in (c.num, c.den, g.num, g.den, h.num, h.den))
+    forward = _product(nc, ng)
     delay = loop.delay if loop.delay else None
-    a = _by_power(poles)
+    a = _product(dc, dg, dh)
     return _Series(
-        nge=_Quasi(_by_power(forward * h.den), (), None),
-        dge=_Quasi(a, _by_power(forward * (h.num - h.den)), delay),
-        char=_Quasi(a, _by_power(forward * h.num), delay),
-        dist=_Quasi(_by_power(g.num * c.den * h.den), (), None),
-        feedback_num=_Quasi(_by_power(h.num), (), None),
-        feedback_den=_Quasi(_by_power(h.den), (), None),
-        controller_den=_Quasi(_by_power(c.den), (), None),
+        nge=_Quasi(_product(forward, dh), (), None),
+        dge=_Quasi(a, _product(forward, _by_power(h.num - h.den)), delay),
+        char=_Quasi(a, _product(forward, nh), delay),
+        dist=_Quasi(_product(ng, dc, dh), (), None),
+        feedback_num=_Quasi(nh, (), None),
+        feedback_den=_Quasi(dh, (), None),
+        controller_den=_Quasi(dc, (), None),
     )
 
 
