@@ -316,6 +316,27 @@ def test_fraction_free_first_column_against_the_textbook_recurrence(
         textbook_num, textbook_den = sympy.fraction(sympy.cancel(entry))
         assert sympy.Poly(num, K).degree() == sympy.Poly(textbook_num, K).degree()
         assert sympy.Poly(den, K).degree() == sympy.Poly(textbook_den, K).degree()
+    # Not in lowest terms: the same entries, and their numerators and denominators have
+    # the same real roots taken together as the textbook's (sympy's real_roots).
+    raw, raw_degenerate = _first_column_parts(
+        [[int(c) for c in p.all_coeffs()] for p in columns], lowest_terms=False
+    )
+    assert raw_degenerate == stop
+    for (num, den), entry in zip(raw, textbook, strict=True):
+        ratio = sympy.cancel(sympy.Poly(num, K).as_expr() / sympy.Poly(den, K).as_expr() / entry)
+        assert ratio.is_Rational and ratio != 0
+
+    def roots(polys: list[sympy.Expr]) -> set[sympy.Expr]:
+        found: set[sympy.Expr] = set()
+        for q in polys:
+            q_poly = sympy.Poly(q, K)
+            if q_poly.degree() > 0:
+                found.update(q_poly.real_roots())
+        return found
+
+    textbook_parts = [part for e in textbook for part in sympy.fraction(sympy.cancel(e))]
+    raw_parts = [sympy.Poly(part, K).as_expr() for pair in raw for part in pair]
+    assert roots(raw_parts) == roots(textbook_parts)
 
 
 # ------------------------------------------------------------------ stable gain sets

@@ -482,7 +482,12 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
             nominal_gain=nominal_gain,
         )
 
-    parts, degenerate = _first_column_parts(ints)
+    # The candidates need the roots of the parts, not the parts in lowest terms: the roots of
+    # Δ(i)/Δ(i−1) reduced and of Δ(i) over Δ(i−1) as they are, taken over all rows, are
+    # the same set (a root of a common factor of Δ(i) and Δ(i−1) is a root of Δ(i−1), so
+    # of an earlier entry, down to Δ(1) which is never reduced), and so are the
+    # irreducible factors with such roots. One gcd per row saved.
+    parts, degenerate = _first_column_parts(ints, lowest_terms=False)
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
@@ -629,11 +634,11 @@ def _symbolic_first_column(
 
 
 def _first_column_parts(
-    columns: list[list[int]],
+    columns: list[list[int]], lowest_terms: bool = True
 ) -> tuple[list[tuple[list[int], list[int]]], int | None]:
     """Numerator and denominator of each first-column entry over Q(k), in lowest terms up
-    to a constant factor (integer coefficients, highest power first), and the power of the
-    row whose entry is ≡ 0, if any. Fraction-free: row i of the table times the Hurwitz
+    to a constant factor (as Δ(i) and Δ(i−1) when not ``lowest_terms``; integer
+    coefficients, highest power first), and the power of the row whose entry is ≡ 0, if any. Fraction-free: row i of the table times the Hurwitz
     determinant Δ(i−1) is a polynomial F(i) (a minor of the Hurwitz matrix), with
     F(i+1, j) = (F(i, 0)·F(i−1, j+1) − F(i−1, 0)·F(i, j+1)) / F(i−2, 0) an exact division
     and F(i, 0) = Δ(i); so the entries are F(0, 0), F(1, 0) and Δ(i)/Δ(i−1) (Gantmacher,
@@ -656,9 +661,11 @@ def _first_column_parts(
             return parts, n - i
         if i == 1:
             parts.append((cur[0], [1]))
-        else:
+        elif lowest_terms:
             _, num, den_part = dup_inner_gcd(cur[0], prev[0], ZZ)
             parts.append((num, den_part))
+        else:
+            parts.append((cur[0], prev[0]))
         if i == n:
             break
         nxt = [
