@@ -21,9 +21,11 @@ from hypothesis import strategies as st
 from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, poly
 from speclint.analysis.gainset import INF, ZERO, GainSet, Interval, to_float
 from speclint.analysis.stability import (
+    _S_RING,
     EPS,
     _first_column_parts,
     _proven_irreducible,
+    _shown_coprime,
     hidden_modes,
     irreducible_parts,
     is_hurwitz,
@@ -725,3 +727,28 @@ def test_irreducibility_shown_without_factoring() -> None:
     assert irreducible_parts([1, 0, 0, 0, 1]) == [(1, 0, 0, 0, 1)]
     assert not _proven_irreducible([1, -6, 11, -6])  # (x − 1)(x − 2)(x − 3)
     assert irreducible_parts([2, -12, 22, -12]) == [(1, -3), (1, -2), (1, -1)]
+
+
+_s_factor = st.lists(
+    st.fractions(min_value=-9, max_value=9, max_denominator=7), min_size=2, max_size=3
+)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(_s_factor, min_size=1, max_size=3), st.lists(_s_factor, min_size=1, max_size=3))
+def test_shown_coprime_only_when_sympy_finds_no_common_factor(
+    a_factors: list[list[Fraction]], b_factors: list[list[Fraction]]
+) -> None:
+    # Reference: sympy's gcd over Q[s]. Products of small factors share one now and then.
+    # With coefficients this small the resultant of two coprime ones is far below the
+    # prime, so the modular gcd shows every coprime pair too.
+    def element(factors: list[list[Fraction]]) -> object:
+        p = sympy.Poly(1, S, domain=sympy.QQ)
+        for f in factors:
+            p = p * sympy.Poly([sympy.Rational(c.numerator, c.denominator) for c in f], S)
+        return _S_RING.from_dict(dict(p.as_dict(native=True)))
+
+    a, b = element(a_factors), element(b_factors)
+    assume(a and b and not a.is_ground and not b.is_ground)  # type: ignore[attr-defined]
+    common = a.gcd(b)  # type: ignore[attr-defined]
+    assert _shown_coprime(a, b) == common.is_ground

@@ -952,11 +952,58 @@ def _common_in_s(a: sympy.Poly, b: sympy.Poly, a_part: Any, b_part: Any) -> symp
         g = b_part
     elif not b_part:
         g = a_part
+    elif _shown_coprime(a_part, b_part):
+        return None  # the usual answer, without a gcd over Q
     else:
         g = a_part.gcd(b_part)
     if not g or g.is_ground:
         return None
     return sympy.Poly.from_dict({(i, 0): c for (i,), c in g.items()}, S, K, domain=sympy.QQ)
+
+
+_P = 2**61 - 1  # a prime
+
+
+def _shown_coprime(a: Any, b: Any) -> bool:
+    """True when a and b (non-zero elements of _S_RING) are shown to share no factor by
+    their gcd modulo the prime _P; False when not shown. A common factor g over Q is, up to
+    a constant, a common factor in Z[s] of the integer multiples of a and b (Gauss's lemma);
+    when _P does not divide the leading coefficient of a, g keeps its degree modulo _P, so a
+    gcd of degree 0 there rules it out (common practice: modular gcd)."""
+    fa, fb = _mod_p(a), _mod_p(b)
+    if fa is None or fb is None or not fa[0]:
+        return False
+    while fb:
+        # fa mod fb over the integers mod _P
+        inverse = pow(fb[0], -1, _P)
+        while len(fa) >= len(fb) and fa:
+            factor = fa[0] * inverse % _P
+            for i, c in enumerate(fb):
+                fa[i] = (fa[i] - factor * c) % _P
+            while fa and not fa[0]:
+                fa.pop(0)
+        fa, fb = fb, fa
+    return len(fa) == 1
+
+
+def _mod_p(p: Any) -> list[int] | None:
+    """Coefficients of p (highest power first, leading zeros dropped) modulo _P; None when
+    _P divides a denominator."""
+    terms = dict(p)
+    top = max(e for (e,) in terms)
+    out = []
+    for e in range(top, -1, -1):
+        c = terms.get((e,))
+        if c is None:
+            out.append(0)
+            continue
+        den = int(c.denominator) % _P
+        if not den:
+            return None
+        out.append(int(c.numerator) * pow(den, -1, _P) % _P)
+    while out and not out[0]:
+        out.pop(0)
+    return out
 
 
 def _roots_text(factor: sympy.Poly, multiplicity: int) -> str:
