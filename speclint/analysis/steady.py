@@ -243,11 +243,12 @@ def _delay_terms(delay: Fraction | None, count: int) -> tuple[Any, ...]:
 _Low = tuple[int, _Gain] | None
 
 
-def _lowest(f: _Quasi, is_zero: _ZeroTest) -> _Low:
-    """Order at s = 0 and lowest coefficient of f; None when f vanishes identically."""
+def _lowest(f: _Quasi, is_zero: _ZeroTest, start: int = 0) -> _Low:
+    """Order at s = 0 and lowest coefficient of f; None when f vanishes identically. The
+    coefficients below ``start`` are known to vanish."""
     limit = f.search_limit()
     terms = _delay_terms(f.delay, limit + 1)
-    for n in range(limit + 1):
+    for n in range(start, limit + 1):
         c = f.coefficient(n, terms)
         if not is_zero(c):
             return n, c
@@ -618,13 +619,31 @@ def _gain_set(
         holds = holds_at_zero if generic.kind == "zero" else holds_at_inf
         result = positive if holds else GainSet.empty()
     for root, factor, at in _special_gains(f1, f2):
-        at_root = _limit(f1, f2, shift, _divisible_by(factor))
+        at_root = _limit_at_root(f1, f2, shift, _divisible_by(factor))
         if at_root.kind == "ratio":
             holds = _sign_at(test(at_root.a, at_root.b), factor, at) >= 0
         else:
             holds = holds_at_zero if at_root.kind == "zero" else holds_at_inf
         result = _with_point(result, root, holds)
     return result
+
+
+def _limit_at_root(f1: _Quasi, f2: _Quasi, shift: int, is_zero: _ZeroTest) -> _Limit:
+    """_limit with a zero test for one gain: the coefficients below the generic order vanish
+    for every gain, so the search starts at the generic lowest term."""
+    low2 = _low_from_generic(f2, is_zero)
+    if low2 is None:
+        return _Limit("inf")
+    return _from_lows(_low_from_generic(f1, is_zero), low2, shift)
+
+
+def _low_from_generic(f: _Quasi, is_zero: _ZeroTest) -> _Low:
+    generic = _generic_low(f)
+    if generic is None:
+        return None  # f vanishes for every gain
+    if not is_zero(generic[1]):
+        return generic
+    return _lowest(f, is_zero, generic[0] + 1)
 
 
 def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, _Gain, Number]]:
