@@ -475,6 +475,27 @@ def test_limits_cut_the_set_and_keep_closed_ends() -> None:
     result = stable_gains(gain_times(sympy.Integer(1), S * (S + 1) * (S + 2), limits=limits))
     assert result.gains.describe() == "0.01 ≤ K < 6"
     assert result.gains.contains(Fraction(1, 100))
+    # Limits inside the stable range, and limits beyond it on either side.
+    inside = GainSet.between(Fraction(1), Fraction(4))
+    result = stable_gains(gain_times(sympy.Integer(1), S * (S + 1) * (S + 2), limits=inside))
+    assert result.gains == GainSet((Interval(sympy.Integer(1), sympy.Integer(4), True, True),))
+    assert result.ends == ()  # the loop sets neither end
+    beyond = GainSet.between(Fraction(7), Fraction(9))
+    assert stable_gains(
+        gain_times(sympy.Integer(1), S * (S + 1) * (S + 2), limits=beyond)
+    ).gains.is_empty()
+    # K(s+1)^2/(s^3(s+10)^2) is stable only in a middle band, its lower end irrational
+    # (conditionally stable, own design; see test_conditionally_stable_middle_band):
+    # limits above the band leave nothing, limits across it keep the band's upper end.
+    band = stable_gains(gain_times((S + 1) ** 2, S**3 * (S + 10) ** 2)).gains
+    (piece,) = band.intervals
+    above = GainSet.between(Fraction(int(piece.hi) + 1), Fraction(int(piece.hi) + 5))
+    assert stable_gains(
+        gain_times((S + 1) ** 2, S**3 * (S + 10) ** 2, limits=above)
+    ).gains.is_empty()
+    across = GainSet.between(Fraction(0), Fraction(int(piece.hi) + 1))
+    cut = stable_gains(gain_times((S + 1) ** 2, S**3 * (S + 10) ** 2, limits=across)).gains
+    assert cut == band
 
 
 def test_loop_without_gain_is_all_or_nothing() -> None:

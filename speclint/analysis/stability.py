@@ -505,17 +505,34 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
     ends: list[Number | None] = [Fraction(0), *(c for c, _ in candidates), None]
     verdicts = [_hurwitz_at(ints, number_between(lo, hi)) for lo, hi in itertools.pairwise(ends)]
     # Only the ends of stable pieces become sympy numbers (a radical or a CRootOf costs
-    # milliseconds to write down; most candidates separate two unstable pieces).
-    pieces = [
-        Interval(_exact_end(lo), _exact_end(hi))
-        for (lo, hi), ok in zip(itertools.pairwise(ends), verdicts, strict=True)
-        if ok
-    ]
+    # milliseconds to write down; most candidates separate two unstable pieces), and only
+    # those the limits do not cut off: a piece (open at both ends) wholly outside them is
+    # dropped, an end beyond them is replaced by one the intersection cuts off the same
+    # way (∞ above, 0 below: the limits lie in (0, ∞)).
+    hull = _number_hull(domain)
+    pieces = []
+    for (lo, hi), ok in zip(itertools.pairwise(ends), verdicts, strict=True):
+        if not ok:
+            continue
+        if hull is not None:
+            assert lo is not None  # only the last end is ∞
+            d, top = hull
+            if (hi is not None and not number_less(d, hi)) or (
+                top is not None and not number_less(lo, top)
+            ):
+                continue
+            if top is not None and hi is not None and number_less(top, hi):
+                hi = None
+            if number_less(lo, d):
+                lo = _ZERO
+        pieces.append(Interval(_exact_end(lo), _exact_end(hi)))
     gains = GainSet.of(pieces).intersect(domain)
     ends_set = tuple(
         (exact_gain, _monic(factor))
         for i, (gain, factor) in enumerate(candidates)
-        if (verdicts[i] or verdicts[i + 1]) and domain.contains(exact_gain := to_exact(gain))
+        if (verdicts[i] or verdicts[i + 1])
+        and _within(gain, hull)
+        and domain.contains(exact_gain := to_exact(gain))
     )
     return StableSet(
         gains=gains,
@@ -529,6 +546,26 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
 
 def _exact_end(x: Number | None) -> Exact:
     return INF if x is None else to_exact(x)
+
+
+def _number_hull(domain: GainSet) -> tuple[Fraction, Fraction | None] | None:
+    """The ends of a domain of one interval with rational ends (None: ∞ above) as numbers of
+    the analysis; None for any other domain."""
+    if len(domain.intervals) != 1:
+        return None
+    lo, hi = domain.intervals[0].lo, domain.intervals[0].hi
+    if not lo.is_Rational or not (hi is INF or hi.is_Rational):
+        return None
+    top = None if hi is INF else Fraction(int(hi.p), int(hi.q))
+    return Fraction(int(lo.p), int(lo.q)), top
+
+
+def _within(x: Number, hull: tuple[Fraction, Fraction | None] | None) -> bool:
+    """False when x lies beyond the hull's ends (then outside the domain); True otherwise."""
+    if hull is None:
+        return True
+    d, top = hull
+    return not number_less(x, d) and (top is None or not number_less(top, x))
 
 
 def _integer_columns(at_k: list[list[Fraction]]) -> list[list[int]]:
