@@ -675,8 +675,9 @@ def _first_column_parts(
 ) -> tuple[list[tuple[list[int], list[int]]], int | None]:
     """Numerator and denominator of each first-column entry over Q(k), in lowest terms up
     to a constant factor (as Δ(i) and Δ(i−1) when not ``lowest_terms``; integer
-    coefficients, highest power first), and the power of the row whose entry is ≡ 0, if any. Fraction-free: row i of the table times the Hurwitz
-    determinant Δ(i−1) is a polynomial F(i) (a minor of the Hurwitz matrix), with
+    coefficients, highest power first), and the power of the row whose entry is ≡ 0, if
+    any. Fraction-free: row i of the table times the Hurwitz determinant Δ(i−1) is a
+    polynomial F(i) (a minor of the Hurwitz matrix), with
     F(i+1, j) = (F(i, 0)·F(i−1, j+1) − F(i−1, 0)·F(i, j+1)) / F(i−2, 0) an exact division
     and F(i, 0) = Δ(i); so the entries are F(0, 0), F(1, 0) and Δ(i)/Δ(i−1) (Gantmacher,
     The Theory of Matrices, vol. 2, ch. XV: the Routh scheme and the Hurwitz minors)."""
