@@ -280,7 +280,7 @@ class Figures:
         for key in ("kp", "kv", "ka"):
             exact[key] = _text(getattr(ss, key))
             if symbol is not None:
-                exact[f"{key}(gain)"] = _text(getattr(ss, f"{key}_expr"), symbol)
+                exact[f"{key}(gain)"] = _shown(steady.constant_text(ss, key, symbol))
         if self.stable is not None and symbol is not None:
             exact["stable_gains"] = self.stable.describe(symbol)
         if self.stability_note:
@@ -324,14 +324,19 @@ def _q(x: Fraction | None) -> sympy.Rational:
     return sympy.Rational(x.numerator, x.denominator)
 
 
-def _text(value: sympy.Expr, symbol: str | None = None) -> str:
+def _text(value: sympy.Expr) -> str:
+    """An exact figure as sympy.sstr writes it, "∞" for oo."""
     if value is sympy.oo:
         return "∞"
-    if symbol is not None:
-        # xreplace swaps the symbol in the tree without subs' evaluation machinery (a tenth
-        # of the cost); a plain rename changes no value.
-        value = value.xreplace({K: sympy.Symbol(symbol)})
+    if isinstance(value, sympy.Rational):
+        # What sstr writes for a rational number, without setting up a printer (most of
+        # the cost of writing one).
+        return str(value.p) if value.q == 1 else f"{value.p}/{value.q}"
     return str(sympy.sstr(value))
+
+
+def _shown(text: str) -> str:
+    return "∞" if text == "oo" else text
 
 
 def _floats(gains: GainSet) -> tuple[Interval, ...]:

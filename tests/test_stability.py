@@ -21,9 +21,13 @@ from hypothesis import strategies as st
 from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, poly
 from speclint.analysis.gainset import INF, ZERO, GainSet, Interval, to_float
 from speclint.analysis.stability import (
+    _S_RING,
     EPS,
     _first_column_parts,
+    _proven_irreducible,
+    _shown_coprime,
     hidden_modes,
+    irreducible_parts,
     is_hurwitz,
     routh_table,
     stable_gains,
@@ -314,6 +318,27 @@ def test_fraction_free_first_column_against_the_textbook_recurrence(
         textbook_num, textbook_den = sympy.fraction(sympy.cancel(entry))
         assert sympy.Poly(num, K).degree() == sympy.Poly(textbook_num, K).degree()
         assert sympy.Poly(den, K).degree() == sympy.Poly(textbook_den, K).degree()
+    # Not in lowest terms: the same entries, and their numerators and denominators have
+    # the same real roots taken together as the textbook's (sympy's real_roots).
+    raw, raw_degenerate = _first_column_parts(
+        [[int(c) for c in p.all_coeffs()] for p in columns], lowest_terms=False
+    )
+    assert raw_degenerate == stop
+    for (num, den), entry in zip(raw, textbook, strict=True):
+        ratio = sympy.cancel(sympy.Poly(num, K).as_expr() / sympy.Poly(den, K).as_expr() / entry)
+        assert ratio.is_Rational and ratio != 0
+
+    def roots(polys: list[sympy.Expr]) -> set[sympy.Expr]:
+        found: set[sympy.Expr] = set()
+        for q in polys:
+            q_poly = sympy.Poly(q, K)
+            if q_poly.degree() > 0:
+                found.update(q_poly.real_roots())
+        return found
+
+    textbook_parts = [part for e in textbook for part in sympy.fraction(sympy.cancel(e))]
+    raw_parts = [sympy.Poly(part, K).as_expr() for pair in raw for part in pair]
+    assert roots(raw_parts) == roots(textbook_parts)
 
 
 # ------------------------------------------------------------------ stable gain sets
@@ -450,6 +475,27 @@ def test_limits_cut_the_set_and_keep_closed_ends() -> None:
     result = stable_gains(gain_times(sympy.Integer(1), S * (S + 1) * (S + 2), limits=limits))
     assert result.gains.describe() == "0.01 ≤ K < 6"
     assert result.gains.contains(Fraction(1, 100))
+    # Limits inside the stable range, and limits beyond it on either side.
+    inside = GainSet.between(Fraction(1), Fraction(4))
+    result = stable_gains(gain_times(sympy.Integer(1), S * (S + 1) * (S + 2), limits=inside))
+    assert result.gains == GainSet((Interval(sympy.Integer(1), sympy.Integer(4), True, True),))
+    assert result.ends == ()  # the loop sets neither end
+    beyond = GainSet.between(Fraction(7), Fraction(9))
+    assert stable_gains(
+        gain_times(sympy.Integer(1), S * (S + 1) * (S + 2), limits=beyond)
+    ).gains.is_empty()
+    # K(s+1)^2/(s^3(s+10)^2) is stable only in a middle band, its lower end irrational
+    # (conditionally stable, own design; see test_conditionally_stable_middle_band):
+    # limits above the band leave nothing, limits across it keep the band's upper end.
+    band = stable_gains(gain_times((S + 1) ** 2, S**3 * (S + 10) ** 2)).gains
+    (piece,) = band.intervals
+    above = GainSet.between(Fraction(int(piece.hi) + 1), Fraction(int(piece.hi) + 5))
+    assert stable_gains(
+        gain_times((S + 1) ** 2, S**3 * (S + 10) ** 2, limits=above)
+    ).gains.is_empty()
+    across = GainSet.between(Fraction(0), Fraction(int(piece.hi) + 1))
+    cut = stable_gains(gain_times((S + 1) ** 2, S**3 * (S + 10) ** 2, limits=across)).gains
+    assert cut == band
 
 
 def test_loop_without_gain_is_all_or_nothing() -> None:
@@ -604,3 +650,126 @@ def test_plant_zero_against_feedback_poles_on_the_axis() -> None:
     )
     roots = np.roots(NumericLoop(loop).char(3.0))
     assert np.sum(np.abs(np.abs(roots) - 2) < 1e-6) >= 2
+
+
+# Factors with known roots (common practice): whether each has a root in the closed right
+# half plane off the axis (True), only on the axis (False), or none (None).
+_MENU = {
+    S - 1: True,
+    S**2 - S + 1: True,
+    S: False,
+    S**2 + 4: False,
+    S + 2: None,
+    S**2 + S + 1: None,
+}
+
+
+@st.composite
+def blocks_with_shared_factors(draw: st.DrawFn) -> tuple[Ratio, Ratio, Ratio]:
+    def side() -> sympy.Expr:
+        picked = draw(st.lists(st.sampled_from(sorted(_MENU, key=str)), max_size=3))
+        extra = draw(st.sampled_from([1, K, S + K, 2 * K + S**2]))
+        return sympy.Mul(extra, *picked)
+
+    def block() -> Ratio:
+        return Ratio(poly(side()), poly(side() * draw(st.sampled_from([1, S + 5]))))
+
+    return block(), block(), block()
+
+
+@settings(max_examples=40, deadline=None)
+@given(blocks_with_shared_factors())
+def test_hidden_modes_against_the_two_variable_gcd(blocks: tuple[Ratio, Ratio, Ratio]) -> None:
+    # Reference: sympy's gcd of the two polynomials in (s, k) and its factorization; the
+    # factors' roots are known by construction (_MENU).
+    loop = make_loop(*blocks)
+    names = ("controller", "plant", "feedback")
+    expected = set()
+    for pole_name, pole in zip(names, blocks, strict=True):
+        for zero_name, zero in zip(names, blocks, strict=True):
+            common = sympy.Poly(pole.den.as_expr(), S, K).gcd(sympy.Poly(zero.num.as_expr(), S, K))
+            for factor, multiplicity in common.factor_list()[1]:
+                if factor.degree(K) > 0 or factor.degree(S) <= 0:
+                    continue
+                monic = sympy.Poly(factor.as_expr(), S).monic().as_expr()
+                if _MENU[monic] is not None:
+                    expected.add((zero_name, pole_name, monic, multiplicity, _MENU[monic]))
+    found = {
+        (m.zero_block, m.pole_block, m.factor.as_expr(), m.multiplicity, m.unstable)
+        for m in hidden_modes(loop)
+    }
+    assert found == expected
+
+
+# -- irreducibility shown modulo small primes ----------------------------------------------
+
+_small = st.integers(-60, 60)
+_lead = st.integers(1, 10**6)
+
+
+@st.composite
+def cubics_and_quartics(draw: st.DrawFn) -> list[int]:
+    """Integer cubics and quartics: random ones (mostly irreducible) and products of
+    smaller factors (reducible), times a random content."""
+    kind = draw(st.sampled_from(["random3", "random4", "1x2", "1x3", "2x2", "1x1x2"]))
+    if kind.startswith("random"):
+        coeffs = [draw(_lead)] + [draw(st.integers(-(10**6), 10**6)) for _ in range(int(kind[-1]))]
+    else:
+        p = sympy.Poly(1, S)
+        for degree in (int(d) for d in kind.split("x")):
+            factor = [draw(st.integers(1, 40))] + [draw(_small) for _ in range(degree)]
+            p = p * sympy.Poly(factor, S)
+        coeffs = [int(c) for c in p.all_coeffs()]
+    assume(coeffs[-1] != 0)  # the callers take the root 0 out first
+    return [c * draw(st.sampled_from([1, -1, 6, 10**9])) for c in coeffs]
+
+
+@settings(max_examples=100, deadline=None)
+@given(cubics_and_quartics())
+def test_irreducible_parts_against_sympy_factoring(p: list[int]) -> None:
+    # Reference: sympy's factorization over the integers (factor_list, Zassenhaus).
+    _, factors = sympy.Poly(p, S).factor_list()
+    irreducible = len(factors) == 1 and factors[0][1] == 1
+    if _proven_irreducible(p):
+        assert irreducible
+    expected = sorted(
+        tuple(int(c) for c in (f if f.LC() > 0 else -f).all_coeffs()) for f, _ in factors
+    )
+    assert sorted(irreducible_parts(p)) == expected
+
+
+def test_irreducibility_shown_without_factoring() -> None:
+    # x^3 − 2 is irreducible (Eisenstein at 2, common practice) and has no root mod 7 (the
+    # cubes mod 7 are 0, 1, 6). x^4 + 1 is irreducible but has a root or splits into
+    # quadratics modulo every prime (a textbook example, e.g. Dummit and Foote, Abstract
+    # Algebra, §9.4; from memory): the test cannot show it, and sympy's factoring decides.
+    assert _proven_irreducible([1, 0, 0, -2])
+    assert not _proven_irreducible([1, 0, 0, 0, 1])
+    assert irreducible_parts([1, 0, 0, 0, 1]) == [(1, 0, 0, 0, 1)]
+    assert not _proven_irreducible([1, -6, 11, -6])  # (x − 1)(x − 2)(x − 3)
+    assert irreducible_parts([2, -12, 22, -12]) == [(1, -3), (1, -2), (1, -1)]
+
+
+_s_factor = st.lists(
+    st.fractions(min_value=-9, max_value=9, max_denominator=7), min_size=2, max_size=3
+)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(_s_factor, min_size=1, max_size=3), st.lists(_s_factor, min_size=1, max_size=3))
+def test_shown_coprime_only_when_sympy_finds_no_common_factor(
+    a_factors: list[list[Fraction]], b_factors: list[list[Fraction]]
+) -> None:
+    # Reference: sympy's gcd over Q[s]. Products of small factors share one now and then.
+    # With coefficients this small the resultant of two coprime ones is far below the
+    # prime, so the modular gcd shows every coprime pair too.
+    def element(factors: list[list[Fraction]]) -> object:
+        p = sympy.Poly(1, S, domain=sympy.QQ)
+        for f in factors:
+            p = p * sympy.Poly([sympy.Rational(c.numerator, c.denominator) for c in f], S)
+        return _S_RING.from_dict(dict(p.as_dict(native=True)))
+
+    a, b = element(a_factors), element(b_factors)
+    assume(a and b and not a.is_ground and not b.is_ground)  # type: ignore[attr-defined]
+    common = a.gcd(b)  # type: ignore[attr-defined]
+    assert _shown_coprime(a, b) == common.is_ground

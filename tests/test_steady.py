@@ -519,3 +519,96 @@ def test_random_loops_match_limits(loop: LoopAlgebra) -> None:
     assert ss.type == limit_type(loop)
     assert ss.step_error == limit_error(loop, "step")
     assert ss.ramp_error == limit_error(loop, "ramp")
+
+
+# -- exact texts against sympy's printer ---------------------------------------------------
+
+_coefficient = st.fractions(min_value=-200, max_value=200, max_denominator=12)
+_polynomial = st.dictionaries(st.integers(0, 4), _coefficient, max_size=4).map(
+    lambda terms: steady._RING.from_dict(
+        {(e,): sympy.QQ(c.numerator, c.denominator) for e, c in terms.items() if c}
+    )
+)
+_names = st.sampled_from(["K", "Kp", "gain", "k_i", "K2"])
+
+
+def _sympy_expr(p: object, x: sympy.Symbol) -> sympy.Expr:
+    # The polynomial built with sympy's own arithmetic, term by term.
+    return sympy.Add(
+        *(
+            sympy.Rational(int(c.numerator), int(c.denominator)) * x**e
+            for (e,), c in dict(p).items()
+        )
+    )  # type: ignore[attr-defined]
+
+
+@settings(max_examples=100, deadline=None)
+@given(_polynomial.filter(bool), _polynomial.filter(bool), _names)
+def test_limit_text_is_what_sympy_prints(a: object, b: object, name: str) -> None:
+    # Reference: sympy.sstr (sympy's str printer) of num/den built as sympy expressions,
+    # num/den in lowest terms as sympy's rational-function cancel leaves them.
+    num, den = a.cancel(b)  # type: ignore[attr-defined]
+    x = sympy.Symbol(name)
+    expected = sympy.sstr(_sympy_expr(num, x) / _sympy_expr(den, x))
+    assert steady.limit_text(steady._Limit("ratio", a, b), name) == expected
+
+
+@pytest.mark.parametrize(
+    ("a", "b", "expected"),
+    [
+        # Shapes where sympy's printer departs from "descending powers, a/b" (a positive
+        # constant leads a two-term sum, a lone negative power prints as a power), and
+        # products with a number below the line. Reference: sympy.sstr, asserted here too.
+        ({1: -1, 0: 2}, {0: 1}, "2 - K"),
+        ({1: -1, 0: 1}, {0: 2}, "1/2 - K/2"),
+        ({0: 1}, {2: 1}, "K**(-2)"),
+        ({0: 1}, {1: 1}, "1/K"),
+        ({0: -3}, {1: 2, 0: 4}, "-3/(2*K + 4)"),
+        ({1: -7}, {1: 3, 0: -9}, "-7*K/(3*K - 9)"),
+        ({1: 3, 0: -1}, {1: 2}, "(3*K - 1)/(2*K)"),
+    ],
+)
+def test_limit_text_special_shapes(a: dict[int, int], b: dict[int, int], expected: str) -> None:
+    def ring(terms: dict[int, int]) -> object:
+        return steady._RING.from_dict({(e,): sympy.QQ(c) for e, c in terms.items()})
+
+    limit = steady._Limit("ratio", ring(a), ring(b))
+    assert steady.limit_text(limit, "K") == expected
+    x = sympy.Symbol("K")
+    assert sympy.sstr(steady._value(limit).xreplace({K: x})) == expected
+
+
+@settings(max_examples=40, deadline=None)
+@given(random_loops())
+def test_constant_text_writes_the_constant_in_the_gain(loop: LoopAlgebra) -> None:
+    # Reference: sympy.sstr of the constants as expressions, and their limits (above).
+    ss = steady.steady_state(loop)
+    for key in ("kp", "kv", "ka"):
+        value = getattr(ss, f"{key}_expr")
+        expected = sympy.sstr(value.xreplace({K: sympy.Symbol("Kp")}))
+        assert steady.constant_text(ss, key, "Kp") == expected
+
+
+_block_polynomial = st.dictionaries(
+    st.tuples(st.integers(0, 4), st.integers(0, 2)),
+    st.fractions(min_value=-9, max_value=9, max_denominator=5),
+    max_size=5,
+).map(
+    lambda terms: sympy.Poly.from_dict(
+        {m: c for m, c in terms.items() if c} or {(0, 0): 0}, S, K, domain=sympy.QQ
+    )
+)
+
+
+@settings(max_examples=80, deadline=None)
+@given(_block_polynomial, _block_polynomial, _block_polynomial)
+def test_lazy_product_coefficients_are_the_products(
+    p: sympy.Poly, q: sympy.Poly, r: sympy.Poly
+) -> None:
+    # Reference: sympy's Poly multiplication in (s, k), split by powers of s.
+    product = steady._product(steady._by_power(p), steady._by_power(q), steady._by_power(r))
+    expected = steady._by_power(p * q * r)
+    assert len(product) == len(expected)
+    for n in reversed(range(len(expected))):  # read out of order: later ones first
+        assert product[n] == expected[n]
+    assert list(product) == list(expected)

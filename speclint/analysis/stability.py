@@ -482,7 +482,12 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
             nominal_gain=nominal_gain,
         )
 
-    parts, degenerate = _first_column_parts(ints)
+    # The candidates need the roots of the parts, not the parts in lowest terms: the roots of
+    # Δ(i)/Δ(i−1) reduced and of Δ(i) over Δ(i−1) as they are, taken over all rows, are
+    # the same set (a root of a common factor of Δ(i) and Δ(i−1) is a root of Δ(i−1), so
+    # of an earlier entry, down to Δ(1) which is never reduced), and so are the
+    # irreducible factors with such roots. One gcd per row saved.
+    parts, degenerate = _first_column_parts(ints, lowest_terms=False)
     if degenerate is not None:
         return StableSet(
             gains=GainSet.empty(),
@@ -500,17 +505,34 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
     ends: list[Number | None] = [Fraction(0), *(c for c, _ in candidates), None]
     verdicts = [_hurwitz_at(ints, number_between(lo, hi)) for lo, hi in itertools.pairwise(ends)]
     # Only the ends of stable pieces become sympy numbers (a radical or a CRootOf costs
-    # milliseconds to write down; most candidates separate two unstable pieces).
-    pieces = [
-        Interval(_exact_end(lo), _exact_end(hi))
-        for (lo, hi), ok in zip(itertools.pairwise(ends), verdicts, strict=True)
-        if ok
-    ]
+    # milliseconds to write down; most candidates separate two unstable pieces), and only
+    # those the limits do not cut off: a piece (open at both ends) wholly outside them is
+    # dropped, an end beyond them is replaced by one the intersection cuts off the same
+    # way (∞ above, 0 below: the limits lie in (0, ∞)).
+    hull = _number_hull(domain)
+    pieces = []
+    for (lo, hi), ok in zip(itertools.pairwise(ends), verdicts, strict=True):
+        if not ok:
+            continue
+        if hull is not None:
+            assert lo is not None  # only the last end is ∞
+            d, top = hull
+            if (hi is not None and not number_less(d, hi)) or (
+                top is not None and not number_less(lo, top)
+            ):
+                continue
+            if top is not None and hi is not None and number_less(top, hi):
+                hi = None
+            if number_less(lo, d):
+                lo = _ZERO
+        pieces.append(Interval(_exact_end(lo), _exact_end(hi)))
     gains = GainSet.of(pieces).intersect(domain)
     ends_set = tuple(
         (exact_gain, _monic(factor))
         for i, (gain, factor) in enumerate(candidates)
-        if (verdicts[i] or verdicts[i + 1]) and domain.contains(exact_gain := to_exact(gain))
+        if (verdicts[i] or verdicts[i + 1])
+        and _within(gain, hull)
+        and domain.contains(exact_gain := to_exact(gain))
     )
     return StableSet(
         gains=gains,
@@ -524,6 +546,26 @@ def stable_gains(loop: LoopAlgebra) -> StableSet:
 
 def _exact_end(x: Number | None) -> Exact:
     return INF if x is None else to_exact(x)
+
+
+def _number_hull(domain: GainSet) -> tuple[Fraction, Fraction | None] | None:
+    """The ends of a domain of one interval with rational ends (None: ∞ above) as numbers of
+    the analysis; None for any other domain."""
+    if len(domain.intervals) != 1:
+        return None
+    lo, hi = domain.intervals[0].lo, domain.intervals[0].hi
+    if not lo.is_Rational or not (hi is INF or hi.is_Rational):
+        return None
+    top = None if hi is INF else Fraction(int(hi.p), int(hi.q))
+    return Fraction(int(lo.p), int(lo.q)), top
+
+
+def _within(x: Number, hull: tuple[Fraction, Fraction | None] | None) -> bool:
+    """False when x lies beyond the hull's ends (then outside the domain); True otherwise."""
+    if hull is None:
+        return True
+    d, top = hull
+    return not number_less(x, d) and (top is None or not number_less(top, x))
 
 
 def _integer_columns(at_k: list[list[Fraction]]) -> list[list[int]]:
@@ -629,12 +671,13 @@ def _symbolic_first_column(
 
 
 def _first_column_parts(
-    columns: list[list[int]],
+    columns: list[list[int]], lowest_terms: bool = True
 ) -> tuple[list[tuple[list[int], list[int]]], int | None]:
     """Numerator and denominator of each first-column entry over Q(k), in lowest terms up
-    to a constant factor (integer coefficients, highest power first), and the power of the
-    row whose entry is ≡ 0, if any. Fraction-free: row i of the table times the Hurwitz
-    determinant Δ(i−1) is a polynomial F(i) (a minor of the Hurwitz matrix), with
+    to a constant factor (as Δ(i) and Δ(i−1) when not ``lowest_terms``; integer
+    coefficients, highest power first), and the power of the row whose entry is ≡ 0, if
+    any. Fraction-free: row i of the table times the Hurwitz determinant Δ(i−1) is a
+    polynomial F(i) (a minor of the Hurwitz matrix), with
     F(i+1, j) = (F(i, 0)·F(i−1, j+1) − F(i−1, 0)·F(i, j+1)) / F(i−2, 0) an exact division
     and F(i, 0) = Δ(i); so the entries are F(0, 0), F(1, 0) and Δ(i)/Δ(i−1) (Gantmacher,
     The Theory of Matrices, vol. 2, ch. XV: the Routh scheme and the Hurwitz minors)."""
@@ -656,9 +699,11 @@ def _first_column_parts(
             return parts, n - i
         if i == 1:
             parts.append((cur[0], [1]))
-        else:
+        elif lowest_terms:
             _, num, den_part = dup_inner_gcd(cur[0], prev[0], ZZ)
             parts.append((num, den_part))
+        else:
+            parts.append((cur[0], prev[0]))
         if i == n:
             break
         nxt = [
@@ -695,7 +740,7 @@ def _candidates(parts: list[tuple[list[int], list[int]]]) -> list[tuple[Number, 
         seen.add(key)
         if realroots.sign_variations(ints) == 0:
             continue  # no positive root (Descartes' rule of signs): nothing to factor
-        factors.update(dict.fromkeys(irreducible_factors(ints)))
+        factors.update(dict.fromkeys(irreducible_parts(ints)))
     found: list[tuple[Number, tuple[int, ...]]] = []
     for factor in factors:
         found.extend((root, factor) for root in factor_roots(factor) if number_less(_ZERO, root))
@@ -703,6 +748,70 @@ def _candidates(parts: list[tuple[list[int], list[int]]]) -> list[tuple[Number, 
 
 
 _ZERO = Fraction(0)
+
+
+def irreducible_parts(p: list[int]) -> list[tuple[int, ...]]:
+    """``gainset.irreducible_factors(p)``, without sympy's factoring for a cubic or quartic
+    that its roots modulo small primes prove irreducible (most first-column polynomials)."""
+    if len(p) in (4, 5) and _proven_irreducible(p):
+        g = 0
+        for c in p:
+            g = math.gcd(g, c)
+        g = -g if p[0] < 0 else g
+        return [tuple(c // g for c in p)]  # primitive, positive leading coefficient
+    return irreducible_factors(p)
+
+
+# Primes for the test below; it gives up (and sympy factors) after _TRIES of them that do
+# not divide the leading coefficient.
+_PRIMES = tuple(int(q) for q in sympy.primerange(2, 240))
+_TRIES = 24
+
+
+def _proven_irreducible(p: list[int]) -> bool:
+    """True when the integer cubic or quartic p is shown irreducible over Q; False when not
+    shown (it may still be).
+
+    A polynomial that factors over Q factors over Z with factors of the same degrees
+    (Gauss's lemma). Modulo a prime q that does not divide the leading coefficient the
+    factors keep their degrees, so a linear factor gives a root mod q: no root mod some such
+    q rules out a linear factor (for a cubic, the only way to factor). A quartic may also
+    be a product g·h of two quadratics: then a root r mod q makes g or h equal to
+    (x − r)(x − s) with s a root as well, so a single root r mod q with p'(r) ≢ 0 (not
+    double) rules that out (Knuth, The Art of Computer Programming, vol. 2, §4.6.2, on
+    factoring over the integers through factoring mod p; from memory)."""
+    n = len(p) - 1
+    no_linear = False
+    no_quadratics = n == 3
+    tries = _TRIES
+    for q in _PRIMES:
+        lead = p[0] % q
+        if not lead:
+            continue
+        c = [x % q for x in p]
+        roots = []
+        for x in range(q):
+            acc = 0
+            for coefficient in c:
+                acc = (acc * x + coefficient) % q
+            if not acc:
+                roots.append(x)
+                if len(roots) > 1:
+                    break
+        if not roots:
+            no_linear = True
+        elif len(roots) == 1 and not no_quadratics:
+            r = roots[0]
+            slope = 0
+            for i, coefficient in enumerate(c[:-1]):
+                slope = (slope * r + (n - i) * coefficient) % q
+            no_quadratics = slope != 0
+        if no_linear and no_quadratics:
+            return True
+        tries -= 1
+        if not tries:
+            return False
+    return False
 
 
 def _compare(a: tuple[Number, tuple[int, ...]], b: tuple[Number, tuple[int, ...]]) -> int:
@@ -821,9 +930,15 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
         ("feedback", loop.feedback),
     )
     found: list[HiddenMode] = []
-    for pole_name, pole_block in blocks:
-        for zero_name, zero_block in blocks:
-            common = _common_in_s(pole_block.den, zero_block.num)
+    if any(p.gens != (S, K) for _, block in blocks for p in (block.num, block.den)):
+        dens = nums = [_GENERAL] * len(blocks)
+    else:
+        # Each block's gain-free part once, not once for each of the nine pairs.
+        dens = [_gain_free(block.den) for _, block in blocks]
+        nums = [_gain_free(block.num) for _, block in blocks]
+    for (pole_name, pole_block), den_part in zip(blocks, dens, strict=True):
+        for (zero_name, zero_block), num_part in zip(blocks, nums, strict=True):
+            common = _common_in_s(pole_block.den, zero_block.num, den_part, num_part)
             if common is None or common.total_degree() <= 0:
                 continue
             for factor, multiplicity in common.factor_list()[1]:
@@ -838,31 +953,95 @@ def hidden_modes(loop: LoopAlgebra) -> list[HiddenMode]:
 
 
 _S_RING, _ = sympy.ring([S], sympy.QQ)
+_GENERAL = object()  # a polynomial in other generators: the general gcd decides
 
 
-def _common_in_s(a: sympy.Poly, b: sympy.Poly) -> sympy.Poly | None:
-    """The factors free of the gain common to a and b, with their multiplicities (as a
-    polynomial in (S, K)); None when there is none. Only those are reported, and a factor
-    f(s) divides a(s, k) = Σ a_j(s)·k^j exactly when it divides every a_j: so this is the
-    gcd of all those coefficients over Q[s], one-variable gcds instead of a two-variable
-    one. Polynomials in other generators take the general gcd."""
-    if a.gens != (S, K) or b.gens != (S, K):
-        return a.gcd(b)
-    if (a.is_ground and not a.is_zero) or (b.is_ground and not b.is_zero):
+def _gain_free(p: sympy.Poly) -> Any:
+    """The factors of p(s, k) free of the gain, with their multiplicities, as an element of
+    _S_RING (up to a constant); the ring's zero for p = 0 (it shares every factor); None
+    when there is none. A factor f(s) divides p = Σ p_j(s)·k^j exactly when it divides
+    every p_j: so this is the gcd of those coefficients over Q[s], one-variable gcds
+    instead of a two-variable one."""
+    if p.is_zero:
+        return _S_RING.zero
+    if p.is_ground:
         return None  # a non-zero constant shares no factor
-    parts: dict[tuple[int, int], dict[tuple[int], Any]] = {}
-    for which, p in enumerate((a, b)):
-        for (i, j), c in p.as_dict(native=True).items():
-            parts.setdefault((which, j), {})[(i,)] = c
+    parts: dict[int, dict[tuple[int], Any]] = {}
+    for (i, j), c in p.as_dict(native=True).items():
+        parts.setdefault(j, {})[(i,)] = c
     g = None
     for terms in parts.values():
         element = _S_RING.from_dict(terms)
         g = element if g is None else g.gcd(element)
         if g.is_ground:
             return None
-    if g is None:
+    return g
+
+
+def _common_in_s(a: sympy.Poly, b: sympy.Poly, a_part: Any, b_part: Any) -> sympy.Poly | None:
+    """The factors free of the gain common to a and b, with their multiplicities (as a
+    polynomial in (S, K)), from their gain-free parts (see _gain_free); None when there is
+    none. Polynomials in other generators take the general gcd."""
+    if a_part is _GENERAL or b_part is _GENERAL:
+        return a.gcd(b)
+    if a_part is None or b_part is None:
+        return None
+    if not a_part:
+        g = b_part
+    elif not b_part:
+        g = a_part
+    elif _shown_coprime(a_part, b_part):
+        return None  # the usual answer, without a gcd over Q
+    else:
+        g = a_part.gcd(b_part)
+    if not g or g.is_ground:
         return None
     return sympy.Poly.from_dict({(i, 0): c for (i,), c in g.items()}, S, K, domain=sympy.QQ)
+
+
+_P = 2**61 - 1  # a prime
+
+
+def _shown_coprime(a: Any, b: Any) -> bool:
+    """True when a and b (non-zero elements of _S_RING) are shown to share no factor by
+    their gcd modulo the prime _P; False when not shown. A common factor g over Q is, up to
+    a constant, a common factor in Z[s] of the integer multiples of a and b (Gauss's lemma);
+    when _P does not divide the leading coefficient of a, g keeps its degree modulo _P, so a
+    gcd of degree 0 there rules it out (common practice: modular gcd)."""
+    fa, fb = _mod_p(a), _mod_p(b)
+    if fa is None or fb is None or not fa[0]:
+        return False
+    while fb:
+        # fa mod fb over the integers mod _P
+        inverse = pow(fb[0], -1, _P)
+        while len(fa) >= len(fb) and fa:
+            factor = fa[0] * inverse % _P
+            for i, c in enumerate(fb):
+                fa[i] = (fa[i] - factor * c) % _P
+            while fa and not fa[0]:
+                fa.pop(0)
+        fa, fb = fb, fa
+    return len(fa) == 1
+
+
+def _mod_p(p: Any) -> list[int] | None:
+    """Coefficients of p (highest power first, leading zeros dropped) modulo _P; None when
+    _P divides a denominator."""
+    terms = dict(p)
+    top = max(e for (e,) in terms)
+    out = []
+    for e in range(top, -1, -1):
+        c = terms.get((e,))
+        if c is None:
+            out.append(0)
+            continue
+        den = int(c.denominator) % _P
+        if not den:
+            return None
+        out.append(int(c.numerator) * pow(den, -1, _P) % _P)
+    while out and not out[0]:
+        out.pop(0)
+    return out
 
 
 def _roots_text(factor: sympy.Poly, multiplicity: int) -> str:
