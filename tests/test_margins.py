@@ -720,3 +720,24 @@ def test_slow_undamped_pole_pair_is_not_counted_as_unstable() -> None:
         z = rhp_closed_loop_roots(S + 3, S**2 + sympy.Rational(1, 400), k, 0.1)
         assert z == pytest.approx(round(z), abs=0.05)
         assert delayed.gains.contains(sympy.Float(k)) == (round(z) == 0)
+
+
+# The discriminant behind the sensitivity-peak gain set: a resultant computed by evaluation and
+# interpolation, checked against sympy's own resultant of the same bivariate polynomials.
+_ROW = st.lists(st.integers(-(10**12), 10**12), min_size=3, max_size=3)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(_ROW, min_size=2, max_size=8))
+def test_resultant_in_x_matches_sympy(rows: list[list[int]]) -> None:
+    from speclint.analysis.margins import _resultant_in_x
+
+    assume(any(rows[0]))
+    x, k = sympy.symbols("x k")
+    n = len(rows) - 1
+    f = sum((a * k**2 + b * k + c) * x ** (n - i) for i, (a, b, c) in enumerate(rows))
+    # sympy's resultant over the integers (a reference library): the Sylvester determinant
+    # of F and dF/dx in x, a polynomial in k.
+    ref = sympy.Poly(sympy.resultant(f, sympy.diff(f, x), x), k)
+    expected = [int(c) for c in ref.all_coeffs()] if not ref.is_zero else []
+    assert _resultant_in_x(rows) == expected

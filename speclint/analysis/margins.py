@@ -1707,21 +1707,138 @@ def _ms_candidates_exact(resp: _Resp, peak: Fraction) -> list[float]:
         rows.pop(0)
     polys = [rows[-1], rows[0]]  # F at x = 0; F's leading coefficient in x
     if len(rows) > 1:
-        from sympy.polys.domains import ZZ
-        from sympy.polys.euclidtools import dmp_resultant
-
-        # The discriminant in x (up to a constant factor), as sympy's resultant over the
-        # integers computes it for Poly.resultant.
-        degree = len(rows) - 1
-        fz = [_strip(row) for row in rows]
-        fx = [_strip([(degree - i) * c for c in row]) for i, row in enumerate(rows[:-1])]
-        polys.append([int(c) for c in dmp_resultant(fz, fx, 1, ZZ)])
+        # The discriminant in x (up to a constant factor): the resultant of F and dF/dx.
+        polys.append(_resultant_in_x(rows))
     out: list[float] = []
     for poly in polys:
         coeffs = _primitive(poly).coeffs
         if len(coeffs) > 1:
             out.extend(_positive_roots(coeffs))
     return out
+
+
+def _resultant_in_x(rows: Sequence[Sequence[int]]) -> list[int]:
+    """Res_x(F, dF/dx) for F = Σ rows[i](K)·x^(n-i) (each row a polynomial in K, highest power
+    first, rows[0] not zero), as a polynomial in K: exactly the polynomial sympy's resultant
+    over the integers returns (the Sylvester determinant).
+
+    Evaluated at D + 1 consecutive integers K, D a bound on its degree, and interpolated
+    exactly: a univariate resultant of integers at each point costs far less than the
+    subresultant sequence over polynomials in K. Specialising K commutes with the resultant
+    while F's leading coefficient stays non-zero; where it vanishes at a point, sympy's
+    bivariate resultant is used instead.
+    """
+    n = len(rows) - 1
+    # K-degree of the coefficient of x^(n-i); the Sylvester matrix's column j holds the
+    # coefficients i = j - r of its shifted rows, so its determinant's degree is at most the
+    # sum over columns of their largest degree (and over rows likewise).
+    deg = [len(_strip(row)) - 1 for row in rows]
+    by_columns = sum(max(deg[max(0, j - n + 1) : min(j, n) + 1]) for j in range(2 * n - 1))
+    by_rows = (n - 1) * max(deg) + n * max(deg[:-1])
+    bound = max(min(by_columns, by_rows), 0)
+    nodes = range(-(bound // 2), bound - bound // 2 + 1)
+    values: list[int] = []
+    for k in nodes:
+        f = [_horner_int(row, k) for row in rows]
+        if f[0] == 0:
+            return _resultant_in_x_by_sympy(rows)
+        values.append(_res_with_derivative(f))
+    return _interpolate_consecutive(nodes[0], values)
+
+
+def _horner_int(p: Sequence[int], k: int) -> int:
+    acc = 0
+    for c in p:
+        acc = acc * k + c
+    return acc
+
+
+def _resultant_in_x_by_sympy(rows: Sequence[Sequence[int]]) -> list[int]:
+    from sympy.polys.domains import ZZ
+    from sympy.polys.euclidtools import dmp_resultant
+
+    degree = len(rows) - 1
+    fz = [_strip(row) for row in rows]
+    fx = [_strip([(degree - i) * c for c in row]) for i, row in enumerate(rows[:-1])]
+    return [int(c) for c in dmp_resultant(fz, fx, 1, ZZ)]
+
+
+def _res_with_derivative(f: Sequence[int]) -> int:
+    """Res(f, f') for an integer polynomial of degree ≥ 1 (highest power first, f[0] ≠ 0)."""
+    n = len(f) - 1
+    return _int_resultant(list(f), [(n - i) * c for i, c in enumerate(f[:-1])])
+
+
+def _int_resultant(a: list[int], b: list[int]) -> int:
+    """The resultant (Sylvester determinant) of integer polynomials with deg a > deg b ≥ 0,
+    leading coefficients non-zero, by the subresultant algorithm (H. Cohen, "A Course in
+    Computational Algebraic Number Theory", algorithm 3.3.7, from memory): every division
+    in it is exact, so it stays in integers."""
+    da, db = len(a) - 1, len(b) - 1
+    ca, cb = _content(a), _content(b)
+    a = [c // ca for c in a]
+    b = [c // cb for c in b]
+    scale: int = ca**db * cb**da
+    if db == 0:
+        return scale * int(b[0] ** da)
+    sign, g, h = 1, 1, 1
+    while True:
+        delta = da - db
+        if da % 2 and db % 2:
+            sign = -sign
+        r = _pseudo_remainder(a, b)
+        if not r:
+            return 0
+        div = g * h**delta
+        a, da = b, db
+        b = [c // div for c in r]
+        db = len(b) - 1
+        g = a[0]
+        h = g**delta // h ** (delta - 1) if delta else h
+        if db == 0:
+            return sign * scale * int(b[0] ** da // h ** (da - 1))
+
+
+def _content(p: Sequence[int]) -> int:
+    g = 0
+    for c in p:
+        g = math.gcd(g, c)
+    return g
+
+
+def _pseudo_remainder(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    """r with lc(b)^(deg a - deg b + 1)·a = q·b + r, leading zeros dropped."""
+    r = list(a)
+    lead, m = b[0], len(b)
+    for _ in range(len(a) - m + 1):
+        top = r[0]
+        r = [lead * c for c in r[1:]]
+        if top:
+            for i in range(1, m):
+                r[i - 1] -= top * b[i]
+    return _strip(r)
+
+
+def _interpolate_consecutive(start: int, values: Sequence[int]) -> list[int]:
+    """The integer polynomial (highest power first, leading zeros dropped) of degree <
+    len(values) taking values[i] at start + i. Over consecutive integers a divided
+    difference of order j is Δ^j/j!, an integer for a polynomial with integer coefficients,
+    so Newton's table divides exactly."""
+    c = list(values)
+    size = len(c)
+    for j in range(1, size):
+        for i in range(size - 1, j - 1, -1):
+            c[i] = (c[i] - c[i - 1]) // j
+    out = [c[-1]]
+    for i in range(size - 2, -1, -1):
+        node = start + i
+        # out·(K - node) + c[i]
+        shifted = [*out, 0]
+        for t, v in enumerate(out):
+            shifted[t + 1] -= node * v
+        shifted[-1] += c[i]
+        out = shifted
+    return _strip(out)
 
 
 def _strip(coeffs: Sequence[int]) -> list[int]:
