@@ -210,3 +210,31 @@ def test_variable_scale_is_sympys(coeffs: list[int], base: int, content: int) ->
     scaled = tuple(content * c * base**i for i, c in enumerate(coeffs))  # roots times base
     expected = int(preprocess_roots(sympy.Poly(list(scaled), X, domain=sympy.ZZ))[0])
     assert gainset._variable_scale(scaled) == expected
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.lists(
+        st.lists(st.integers(-60, 60), min_size=2, max_size=5).filter(lambda f: f[0] and f[-1]),
+        min_size=1,
+        max_size=3,
+    )
+)
+def test_irreducible_factors_are_sympys(factors: list[list[int]]) -> None:
+    # Products of random factors (repeated factors and reducible ones among them): the
+    # distinct irreducible factors must be those of sympy's factor_list (a reference library),
+    # each primitive with a positive leading coefficient.
+    p = sympy.Poly(1, X)
+    for f in factors:
+        p *= sympy.Poly(f, X)
+    found = [f.as_poly(X) for f, _m in sympy.factor_list(p.as_expr(), X)[1]]
+    expected = sorted(
+        tuple(int(c) for c in (f if f.LC() > 0 else -f).all_coeffs())
+        for f in found
+        if f.degree() > 0
+    )
+    ints = [int(c) for c in p.all_coeffs()]
+    assert sorted(gainset.irreducible_factors(ints)) == expected
+    if len(expected) > 1 or expected[0] != gainset._normal(ints):
+        # A proof of irreducibility must never be found for a reducible polynomial.
+        assert not gainset._proved_irreducible(ints)

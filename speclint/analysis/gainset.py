@@ -281,10 +281,150 @@ def irreducible_factors(p: Sequence[int]) -> list[tuple[int, ...]]:
         # two rational roots (-b ± r)/(2a), each giving a linear factor q·x - p
         found = {_normal([q.denominator, -q.numerator]) for q in _quadratic_roots(a, b, r)}
         return sorted(found)
+    if _proved_irreducible(p):
+        return [_normal(p)]
     from sympy.polys.factortools import dup_factor_list
 
     _, factors = dup_factor_list([int(c) for c in p], ZZ)
     return [_normal([int(c) for c in f]) for f, _ in factors if len(f) > 1]
+
+
+# Small primes for the irreducibility test: arithmetic modulo them stays in machine-sized
+# integers, and a dozen of them settle almost every polynomial the analysis meets.
+_TEST_PRIMES = (101, 103, 107, 109, 113, 127, 131, 137, 139, 149, 151, 157)
+
+
+def _proved_irreducible(p: Sequence[int]) -> bool:
+    """True when p (integers, highest power first, degree ≥ 2) is irreducible over the
+    rationals, proved from its factorisation patterns modulo small primes; False when the
+    test cannot tell (sympy's factorisation decides then).
+
+    Were p = g·h over the integers (Gauss's lemma), a prime q dividing neither p's leading
+    coefficient nor its discriminant would keep deg g, and g mod q would be a product of
+    some of the distinct irreducible factors of p mod q: deg g is a sum of some of their
+    degrees for every such q. When no degree between 1 and deg p - 1 is such a sum for all
+    the primes tried, p has no proper factor (the degree-pattern argument behind factoring
+    modulo primes; J. von zur Gathen and J. Gerhard, "Modern Computer Algebra", from
+    memory). The patterns come from distinct-degree factorisation modulo q."""
+    n = len(p) - 1
+    possible = set(range(1, n))
+    for q in _TEST_PRIMES:
+        if p[0] % q == 0:
+            continue
+        degrees = _factor_degrees_mod(p, q)
+        if degrees is None:
+            continue  # q divides the discriminant
+        sums = {0}
+        for d in degrees:
+            sums |= {s + d for s in sums}
+        possible &= sums
+        if not possible:
+            return True
+    return False
+
+
+def _factor_degrees_mod(p: Sequence[int], q: int) -> list[int] | None:
+    """Degrees of the irreducible factors of p modulo the prime q (q not dividing p's
+    leading coefficient), by distinct-degree factorisation; None when p is not square-free
+    modulo q."""
+    f = _monic_mod([c % q for c in reversed(p)], q)  # lowest power first from here on
+    if len(_gcd_mod(f, _derivative_mod(f, q), q)) > 1:
+        return None
+    degrees: list[int] = []
+    h = [0, 1]  # x
+    d = 0
+    while 2 * (d + 1) <= len(f) - 1:
+        d += 1
+        h = _pow_mod(h, q, f, q)  # x^(q^d) modulo f
+        g = _gcd_mod(f, _sub_mod(h, [0, 1], q), q)
+        if len(g) > 1:
+            degrees += [d] * ((len(g) - 1) // d)
+            f = _div_mod(f, g, q)
+            h = _rem_mod(h, f, q)
+    if len(f) > 1:
+        degrees.append(len(f) - 1)
+    return degrees
+
+
+def _trim_mod(a: list[int]) -> list[int]:
+    while a and a[-1] == 0:
+        a.pop()
+    return a
+
+
+def _monic_mod(a: list[int], q: int) -> list[int]:
+    a = _trim_mod(a)
+    inv = pow(a[-1], -1, q)
+    return [c * inv % q for c in a]
+
+
+def _derivative_mod(a: Sequence[int], q: int) -> list[int]:
+    return _trim_mod([i * a[i] % q for i in range(1, len(a))])
+
+
+def _sub_mod(a: Sequence[int], b: Sequence[int], q: int) -> list[int]:
+    size = max(len(a), len(b))
+    out = [((a[i] if i < len(a) else 0) - (b[i] if i < len(b) else 0)) % q for i in range(size)]
+    return _trim_mod(out)
+
+
+def _rem_mod(a: Sequence[int], f: Sequence[int], q: int) -> list[int]:
+    """a modulo the monic f."""
+    r = list(a)
+    m = len(f) - 1
+    for top in range(len(r) - 1, m - 1, -1):
+        c = r[top]
+        if c:
+            base = top - m
+            for i in range(m):
+                r[base + i] = (r[base + i] - c * f[i]) % q
+        r[top] = 0
+    return _trim_mod(r[:m] if len(r) > m else r)
+
+
+def _div_mod(a: Sequence[int], f: Sequence[int], q: int) -> list[int]:
+    """The quotient of a by the monic f (an exact division)."""
+    r = list(a)
+    m = len(f) - 1
+    out = [0] * (len(r) - m)
+    for top in range(len(r) - 1, m - 1, -1):
+        c = r[top]
+        out[top - m] = c
+        if c:
+            base = top - m
+            for i in range(m + 1):
+                r[base + i] = (r[base + i] - c * f[i]) % q
+    return _trim_mod(out)
+
+
+def _mul_mod(a: Sequence[int], b: Sequence[int], f: Sequence[int], q: int) -> list[int]:
+    prod = [0] * (len(a) + len(b) - 1) if a and b else []
+    for i, x in enumerate(a):
+        if x:
+            for j, y in enumerate(b):
+                prod[i + j] += x * y
+    return _rem_mod([c % q for c in prod], f, q)
+
+
+def _pow_mod(a: list[int], e: int, f: Sequence[int], q: int) -> list[int]:
+    result = [1]
+    while e:
+        if e & 1:
+            result = _mul_mod(result, a, f, q)
+        e >>= 1
+        if e:
+            a = _mul_mod(a, a, f, q)
+    return result
+
+
+def _gcd_mod(a: list[int], b: list[int], q: int) -> list[int]:
+    """The monic gcd (a ≠ 0)."""
+    a = _monic_mod(list(a), q)
+    b = _trim_mod(list(b))
+    while b:
+        b = _monic_mod(b, q)
+        a, b = b, _rem_mod(a, b, q)
+    return a
 
 
 def _quadratic_roots(a: int, b: int, r: int) -> tuple[Fraction, Fraction]:
