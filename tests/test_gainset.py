@@ -238,3 +238,43 @@ def test_irreducible_factors_are_sympys(factors: list[list[int]]) -> None:
     if len(expected) > 1 or expected[0] != gainset._normal(ints):
         # A proof of irreducibility must never be found for a reducible polynomial.
         assert not gainset._proved_irreducible(ints)
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.integers(1, 10**12),
+    st.integers(-(10**12), 10**12).filter(bool),
+    st.integers(-(10**12), 10**12).filter(bool),
+    st.sampled_from([1, 4, 9, 12, 49 * 3, 8, 2**15 + 3]),
+)
+def test_quadratic_roots_are_sympys_radicals(a: int, b: int, c: int, square: int) -> None:
+    # Reference: sympy's Poly.real_roots (the same objects, printed the same way) for
+    # quadratics with large coefficients; `square` puts square factors (small, and beyond
+    # sympy's trial division) into the discriminant.
+    c *= square
+    p = sympy.Poly(a * X**2 + b * X + c, X)
+    theirs = sympy_distinct_roots(p)
+    ours = [to_exact(r) for r in real_roots(coefficients(p))]
+    assert ours == theirs
+    assert [sympy.srepr(r) for r in ours] == [sympy.srepr(r) for r in theirs]
+    assert [sympy.sstr(r) for r in ours] == [sympy.sstr(r) for r in theirs]
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.sampled_from([X**2 - 2, 7 * X**2 - 30 * X + 11, X**2 - 10**6 * X + 3, 16 * X**4 - 21]),
+    st.integers(0, 1),
+    st.integers(1, 18),
+    st.integers(-9, 9),
+)
+def test_float_ends_against_radicals_compare_as_sympy_does(
+    p: sympy.Expr, index: int, digits: int, offset: int
+) -> None:
+    # Reference: sympy's own `<` between a 15-digit Float and the radical (or 4th root) it
+    # writes for the root; a Float end is compared at its own precision, as sympy does, so
+    # the exact shortcut must agree with sympy wherever it decides.
+    root = to_exact(real_roots(coefficients(sympy.Poly(p, X)))[index])
+    value = sympy.N(root, 40) * (1 + sympy.Rational(offset, 10**digits))
+    end = sympy.Float(float(value), 15)
+    assert less(end, root) == bool(end < root)
+    assert less(root, end) == bool(root < end)

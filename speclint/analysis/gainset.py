@@ -507,6 +507,9 @@ def _sympy_root(root: Root) -> Exact:
     n = len(family.poly) - 1
     # p(c·y) with integer coefficients, made primitive: the factor sympy finds.
     scaled = _normal([c * scale ** (n - i) for i, c in enumerate(family.poly)])
+    if n == 2 and scaled[1] != 0:
+        # sympy writes these as radicals (roots_quadratic): built here without its cost.
+        return sympy.Integer(scale) * _quadratic_radicals(*scaled)[root.index]
     pure = sympy.PurePoly(list(scaled), _X, domain=ZZ)
     trivial = rootoftools.CRootOf._roots_trivial(pure, True)
     if trivial is not None:
@@ -529,6 +532,49 @@ def _sympy_root(root: Root) -> Exact:
     return sympy.Integer(scale) * base
 
 
+@functools.lru_cache(maxsize=1024)
+def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact]:
+    """The roots of a·x² + b·x + c (a > 0, b ≠ 0, c ≠ 0, b² - 4ac > 0 and not a square),
+    ascending, as the very expressions sympy's roots_quadratic gives: B ∓ q·√r with
+    B = -b/(2a), where √(b² - 4ac) = m·√r as sympy's power of an integer writes it, q = m/(2a).
+
+    sympy reaches that form by evaluating the square root and then the products twice over,
+    each time searching the integer for square factors (a millisecond or more); here the
+    search runs once, with sympy's own routines, and the expression is assembled from its
+    parts without evaluation (the parts are already in the canonical order)."""
+    m, r = _square_part(b * b - 4 * a * c)
+    lead = sympy.Rational(-b, 2 * a)
+    radical = sympy.Pow(sympy.Integer(r), sympy.S.Half, evaluate=False)
+    q = sympy.Rational(m, 2 * a)
+
+    def term(coeff: sympy.Rational) -> Exact:
+        return radical if coeff == 1 else sympy.Mul(coeff, radical, evaluate=False)
+
+    return (
+        sympy.Add(lead, term(-q), evaluate=False),
+        sympy.Add(lead, term(q), evaluate=False),
+    )
+
+
+def _square_part(d: int) -> tuple[int, int]:
+    """(m, r) with d = m²·r as sympy's Integer._eval_power splits a square root: the square
+    factors it finds by trial division up to 2^15 and its perfect-power test (d > 0, not a
+    square)."""
+    from sympy.ntheory.factor_ import perfect_power
+
+    power = perfect_power(d)
+    if power is not False:
+        found = {int(power[0]): int(power[1])}
+    else:
+        found = sympy.Integer(d).factors(limit=2**15)
+    m = r = 1
+    for prime, exponent in found.items():
+        m *= int(prime) ** (exponent // 2)
+        if exponent % 2:
+            r *= int(prime)
+    return m, r
+
+
 def _qq(x: Fraction) -> object:
     return QQ(x.numerator, x.denominator)
 
@@ -547,11 +593,44 @@ def less(a: Exact, b: Exact) -> bool:
     if a.is_Rational and b.is_Rational:
         return bool(a.p * b.q < b.p * a.q)  # denominators are positive
     na, nb = as_number(a), as_number(b)
-    if na is not None and nb is not None and not _float_against_form(a, na, b, nb):
-        decided = _number_less(na, nb)
+    if na is not None and nb is not None:
+        if _float_against_form(a, na, b, nb):
+            decided = _clearly_less(na, nb)
+        else:
+            decided = _number_less(na, nb)
         if decided is not None:
             return decided
     return _sympy_less(a, b)
+
+
+def _clearly_less(a: Number, b: Number) -> bool | None:
+    """a < b for a Float end (a rational) against an algebraic number sympy writes as a
+    radical or a multiple of a CRootOf, where sympy's comparison, made at the Float's
+    precision, is sure to agree with the exact order; None when they are too close to tell.
+
+    sympy rounds to 53 bits either the other number or, for a radical, the Float plus the
+    radical's rational part; every term involved is at most |F| + R in size, R a bound on
+    the roots of the number's polynomial (a radical's rational part and its surd are half
+    the sum and half the difference of the two roots, so neither exceeds the larger one).
+    A gap wider than 2^-40 times that size leaves no doubt about the order sympy finds."""
+    if isinstance(a, Fraction):
+        if not isinstance(b, Root):
+            return None
+        flip = _clearly_less(b, a)
+        return None if flip is None else not flip
+    if not isinstance(b, Fraction):
+        return None
+    p = a.family.poly
+    size = abs(b) + 1 + Fraction(max(abs(c) for c in p[1:]), abs(p[0]))  # Cauchy's bound
+    tol = size / 2**40
+    while True:
+        if a.hi < b - tol:
+            return True
+        if a.lo > b + tol:
+            return False
+        if a.hi - a.lo < tol:
+            return None
+        a.narrow()
 
 
 def _float_against_form(a: Exact, na: Number, b: Exact, nb: Number) -> bool:
