@@ -278,3 +278,17 @@ def test_float_ends_against_radicals_compare_as_sympy_does(
     end = sympy.Float(float(value), 15)
     assert less(end, root) == bool(end < root)
     assert less(root, end) == bool(root < end)
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.integers(-(10**40), 10**40),
+    st.integers(1, 10**40),
+    st.floats(allow_nan=False, allow_infinity=False, min_value=-1e300, max_value=1e300),
+)
+def test_floats_of_rationals_and_float_ends_are_sympys(p: int, q: int, f: float) -> None:
+    # Reference: sympy's evalf to 17 digits, rounded to 15 (the definition to_float states),
+    # for rationals of every size and for 15-digit Float ends.
+    for x in (sympy.Rational(p, q), sympy.Integer(p), sympy.Float(f, 15)):
+        to_float.cache_clear()
+        assert to_float(x) == float(sympy.Float(x.evalf(17), 15))
