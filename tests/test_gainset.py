@@ -292,3 +292,23 @@ def test_floats_of_rationals_and_float_ends_are_sympys(p: int, q: int, f: float)
     for x in (sympy.Rational(p, q), sympy.Integer(p), sympy.Float(f, 15)):
         to_float.cache_clear()
         assert to_float(x) == float(sympy.Float(x.evalf(17), 15))
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.floats(allow_nan=False, allow_infinity=False, min_value=-1e300, max_value=1e300),
+    st.integers(-(10**30), 10**30),
+    st.integers(1, 10**30),
+    st.sampled_from([0, 1, -1, 2**-60]),
+)
+def test_float_and_rational_ends_compare_as_sympy_does(
+    f: float, p: int, q: int, nudge: float
+) -> None:
+    # Reference: sympy's own `<` between Floats and Rationals, which is exact (the Float's
+    # binary value against the rational); `nudge` puts the two Floats next to each other.
+    x = sympy.Float(f, 15)
+    y = sympy.Float(f * (1 + nudge), 15)
+    r = sympy.Rational(p, q)
+    exact_of_x = sympy.Rational(x)
+    for a, b in ((x, y), (y, x), (x, r), (r, x), (x, exact_of_x), (exact_of_x, x)):
+        assert less(a, b) == bool(a < b)

@@ -29,6 +29,7 @@ import sympy
 from mpmath.libmp import (  # type: ignore[import-untyped]
     from_int,
     from_rational,
+    fzero,
     mpf_pos,
 )
 from mpmath.libmp import to_float as mpf_to_float
@@ -68,6 +69,7 @@ Number: TypeAlias = "Fraction | Root"
 
 _X = sympy.Symbol("x")  # the variable sympy writes CRootOf polynomials in
 _NEG_INF = sympy.S.NegativeInfinity
+_FZERO = fzero  # mpmath's zero
 # Exact bisection steps before a comparison hands over to sympy (two different algebraic
 # numbers always part; this only bounds the work on pathological inputs).
 _MAX_BISECTIONS = 4000
@@ -603,6 +605,9 @@ def less(a: Exact, b: Exact) -> bool:
         return True
     if a.is_Rational and b.is_Rational:
         return bool(a.p * b.q < b.p * a.q)  # denominators are positive
+    ra, rb = _ratio(a), _ratio(b)
+    if ra is not None and rb is not None:
+        return ra[0] * rb[1] < rb[0] * ra[1]
     na, nb = as_number(a), as_number(b)
     if na is not None and nb is not None:
         if _float_against_form(a, na, b, nb):
@@ -612,6 +617,21 @@ def less(a: Exact, b: Exact) -> bool:
         if decided is not None:
             return decided
     return _sympy_less(a, b)
+
+
+def _ratio(x: Exact) -> tuple[int, int] | None:
+    """(n, d), d > 0, with x = n/d for a rational or a finite Float (the binary number it
+    holds: mantissa·2^exponent); None for other numbers. Comparing these in integers is
+    the exact comparison of the values, without a Fraction (and its gcd) for each."""
+    if x.is_Rational:
+        return int(x.p), int(x.q)
+    if x.is_Float:
+        sign, man, exp, _bits = x._mpf_
+        if not man:
+            return (0, 1) if x._mpf_ == _FZERO else None  # inf and nan have no mantissa
+        n = -int(man) if sign else int(man)
+        return (n << exp, 1) if exp >= 0 else (n, 1 << -exp)
+    return None
 
 
 def _clearly_less(a: Number, b: Number) -> bool | None:
