@@ -1477,14 +1477,27 @@ def _sample(lo: float, hi: float) -> Fraction:
     return Fraction((lo + hi) / 2.0)
 
 
-def _decide(cands: list[float], top: float, holds: Callable[[Fraction], bool]) -> GainSet:
+def _decide(
+    cands: list[float],
+    top: float,
+    holds: Callable[[Fraction], bool],
+    within: GainSet | None = None,
+) -> GainSet:
     """The gains in (0, top) where `holds`, given every gain where its truth can change.
 
     Each open interval between candidates is decided at one rational sample; a candidate
     itself belongs to the set only when both neighbouring intervals do (a float end is open).
+    The caller keeps only the part of the set inside `within` (when given): an interval
+    whose closure lies apart from every piece of `within` is not decided (taken as false).
+    Its points and its ends are outside `within`, so the set intersected with `within` is
+    the same, and so is every end of that intersection (each lies inside or at a piece of
+    `within`, where nothing changed).
     """
     ends = [0.0, *_dedupe([c for c in cands if 0.0 < c < top]), top]
-    truth = [holds(_sample(lo, hi)) for lo, hi in itertools.pairwise(ends)]
+    spans = _spans(within)
+    truth = [
+        _meets(lo, hi, spans) and holds(_sample(lo, hi)) for lo, hi in itertools.pairwise(ends)
+    ]
     pieces = [
         Interval(_float_end(lo), _float_end(hi))
         for (lo, hi), ok in zip(itertools.pairwise(ends), truth, strict=True)
@@ -1495,6 +1508,47 @@ def _decide(cands: list[float], top: float, holds: Callable[[Fraction], bool]) -
             point = _float_end(ends[i])
             pieces.append(Interval(point, point, True, True))
     return GainSet.of(pieces)
+
+
+_Span = tuple[Fraction | None, Fraction | None]  # a closed hull; None: unbounded
+
+
+def _spans(within: GainSet | None) -> list[_Span] | None:
+    """The closures of within's pieces as exact (lo, hi) pairs; None when not given or an
+    end is not a rational or Float (then every interval is decided)."""
+    if within is None:
+        return None
+    out: list[_Span] = []
+    for iv in within.intervals:
+        lo = None if iv.lo == -INF else _exact_end(iv.lo)
+        hi = None if iv.hi is INF else _exact_end(iv.hi)
+        if (lo is None and iv.lo != -INF) or (hi is None and iv.hi is not INF):
+            return None
+        out.append((lo, hi))
+    return out
+
+
+def _exact_end(x: sympy.Expr) -> Fraction | None:
+    """A rational or finite Float end as the exact rational it is; None otherwise."""
+    if x.is_Rational:
+        return Fraction(int(x.p), int(x.q))
+    if x.is_Float and x.is_finite:
+        sign, man, exp, _bits = x._mpf_
+        return Fraction(-int(man) if sign else int(man)) * Fraction(2) ** int(exp)
+    return None
+
+
+def _meets(lo: float, hi: float, spans: list[_Span] | None) -> bool:
+    """Whether [lo, hi] (hi may be inf) meets some span (exact comparisons)."""
+    if spans is None:
+        return True
+    for a, b in spans:
+        if b is not None and b < lo:
+            continue
+        if a is not None and math.isfinite(hi) and a > hi:
+            continue
+        return True
+    return False
 
 
 def _stability_checks(resp: _Resp, hidden: int) -> str | None:
@@ -1560,7 +1614,7 @@ def _stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
     def holds(k: Fraction) -> bool:
         return _unstable_roots(hits, open_rhp, float(k)) == 0
 
-    stable = _decide(cands, top, holds)
+    stable = _decide(cands, top, holds, allowed)
     return DelayedStability(stable.intersect(allowed), None, tuple(notes))
 
 
@@ -1616,7 +1670,7 @@ def _crossing_gains(resp: _Resp) -> list[float]:
     return [g for g in out if 0.0 < g < math.inf]
 
 
-def _pm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
+def _pm_set(resp: _Resp, minimum: float, top: float, within: GainSet) -> GainSet:
     floor = 1.0 / top if math.isfinite(top) else 0.0
     m = math.radians(minimum)
     cands = _crossing_gains(resp)
@@ -1628,10 +1682,10 @@ def _pm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
             return False
         return all(abs(pm) >= minimum for pm in _phase_margins(resp, gcs))
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
-def _gm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
+def _gm_set(resp: _Resp, minimum: float, top: float, within: GainSet) -> GainSet:
     # Beyond 6000 dB the spread leaves double precision; every finite gain margin falls short
     # there, which `holds` decides exactly, so the candidates only need to stay finite.
     spread = 10.0 ** min(abs(minimum) / 20.0, 300.0)
@@ -1644,10 +1698,10 @@ def _gm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
     def holds(k: Fraction) -> bool:
         return all(abs(20.0 * math.log10(float(k) * r)) >= minimum for _w, r in pcs)
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
-def _dm_set(resp: _Resp, minimum: Fraction, top: float) -> GainSet:
+def _dm_set(resp: _Resp, minimum: Fraction, top: float, within: GainSet) -> GainSet:
     if minimum <= 0:
         return GainSet.positive()
     shifted = _with_delay(resp, resp.delay + minimum)
@@ -1675,7 +1729,7 @@ def _dm_set(resp: _Resp, minimum: Fraction, top: float) -> GainSet:
         gcs = _gain_crossovers(resp, k)
         return gcs is not None and _delay_margin(resp, k, gcs) >= float(minimum)
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
 def _ms_candidates_exact(resp: _Resp, peak: Fraction) -> list[float]:
@@ -1916,7 +1970,7 @@ def _ms_candidates_delayed(resp: _Resp, peak: Fraction, top: float) -> list[floa
     return [g for g in out if math.isfinite(g) and g > 0.0]
 
 
-def _ms_set(resp: _Resp, maximum: Fraction, top: float) -> GainSet:
+def _ms_set(resp: _Resp, maximum: Fraction, top: float, within: GainSet) -> GainSet:
     if maximum <= 0:
         return GainSet.empty()
     if resp.delay == 0:
@@ -1931,7 +1985,7 @@ def _ms_set(resp: _Resp, maximum: Fraction, top: float) -> GainSet:
             peak, _w, _n = _sensitivity_delayed(resp, k)
         return peak <= float(maximum)
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
 def _as_fraction(x: Fraction | float | int) -> Fraction:
@@ -1970,12 +2024,13 @@ def margin_gains(
         top = min(upper, unstable_above)
     if math.isfinite(top):
         result = result.intersect(GainSet((Interval(sympy.Integer(0), _float_end(top)),)))
+    # Each criterion is decided only where the gains left so far lie (see _decide).
     if min_gain_margin_db is not None:
-        result = result.intersect(_gm_set(resp, float(min_gain_margin_db), top))
+        result = result.intersect(_gm_set(resp, float(min_gain_margin_db), top, result))
     if min_phase_margin_deg is not None:
-        result = result.intersect(_pm_set(resp, float(min_phase_margin_deg), top))
+        result = result.intersect(_pm_set(resp, float(min_phase_margin_deg), top, result))
     if min_delay_margin_s is not None:
-        result = result.intersect(_dm_set(resp, _as_fraction(min_delay_margin_s), top))
+        result = result.intersect(_dm_set(resp, _as_fraction(min_delay_margin_s), top, result))
     if max_sensitivity_peak is not None:
-        result = result.intersect(_ms_set(resp, _as_fraction(max_sensitivity_peak), top))
+        result = result.intersect(_ms_set(resp, _as_fraction(max_sensitivity_peak), top, result))
     return result
