@@ -741,3 +741,24 @@ def test_resultant_in_x_matches_sympy(rows: list[list[int]]) -> None:
     ref = sympy.Poly(sympy.resultant(f, sympy.diff(f, x), x), k)
     expected = [int(c) for c in ref.all_coeffs()] if not ref.is_zero else []
     assert _resultant_in_x(rows) == expected
+
+
+@pytest.mark.parametrize(("num", "den", "t", "name", "value", "k_max"), SWEEPS)
+def test_margin_gain_sets_within_limits_against_a_dense_sweep(
+    num: sympy.Expr, den: sympy.Expr, t: Fraction | None, name: str, value: float, k_max: float
+) -> None:
+    # The same sweep with limits on the gain (a band inside the swept range, closed at both
+    # ends): inside it the set is the criterion point by point, outside it there is no gain.
+    import dataclasses
+
+    lo, hi = Fraction(1, 10), Fraction(k_max) / 3
+    loop = dataclasses.replace(make_loop(num, den, delay=t), limits=GainSet.between(lo, hi))
+    gains = margin_gains(loop, **{name: value})
+    edges = ends(gains)
+    for k in np.geomspace(0.02, k_max, 60):
+        if any(abs(k - e) < 1e-6 * e for e in edges):
+            continue
+        inside = lo <= Fraction(float(k)) <= hi
+        m = margins_at(loop, Fraction(float(k)))
+        expected = inside and _criterion_holds(m, name, float(value))
+        assert gains.contains(sympy.Float(k)) == expected, k
