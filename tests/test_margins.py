@@ -762,3 +762,17 @@ def test_margin_gain_sets_within_limits_against_a_dense_sweep(
         m = margins_at(loop, Fraction(float(k)))
         expected = inside and _criterion_holds(m, name, float(value))
         assert gains.contains(sympy.Float(k)) == expected, k
+
+
+@settings(max_examples=50, deadline=None)
+@given(st.dictionaries(st.integers(0, 12), st.fractions().filter(bool), max_size=8))
+def test_polynomials_in_s_are_sympys(terms: dict[int, Fraction]) -> None:
+    # Reference: sympy's Poly.from_dict over the rationals; the same polynomial (equal, with
+    # the same hash, so the per-loop caches keyed on it still meet).
+    from speclint.analysis.margins import _poly_s
+
+    given_terms = {(i,): sympy.Rational(c.numerator, c.denominator) for i, c in terms.items()}
+    ours = _poly_s(dict(given_terms))
+    theirs = sympy.Poly.from_dict(dict(given_terms) or {(0,): 0}, S, domain=sympy.QQ)
+    assert ours == theirs and hash(ours) == hash(theirs)
+    assert ours.rep.to_list() == theirs.rep.to_list()
