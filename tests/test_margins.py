@@ -776,3 +776,26 @@ def test_polynomials_in_s_are_sympys(terms: dict[int, Fraction]) -> None:
     theirs = sympy.Poly.from_dict(dict(given_terms) or {(0,): 0}, S, domain=sympy.QQ)
     assert ours == theirs and hash(ours) == hash(theirs)
     assert ours.rep.to_list() == theirs.rep.to_list()
+
+
+_SMALL_POLY = st.lists(st.integers(-(10**30), 10**30), min_size=1, max_size=10).filter(
+    lambda c: c[0] != 0
+)
+
+
+@settings(max_examples=80, deadline=None)
+@given(_SMALL_POLY, _SMALL_POLY, st.fractions(min_value=-(10**6), max_value=10**6))
+def test_exact_ratio_of_polynomials_is_rounded_once(
+    a: list[int], b: list[int], x: Fraction
+) -> None:
+    # Reference: sympy's exact evaluation of both polynomials and its correctly rounded float
+    # of the quotient (Rational.__float__ rounds to nearest).
+    from speclint.analysis.margins import _int_poly, _ratio
+
+    pa = sympy.Poly([sympy.Rational(c, 7) for c in a], S, domain=sympy.QQ)
+    pb = sympy.Poly([sympy.Rational(c, 3) for c in b], S, domain=sympy.QQ)
+    xs = sympy.Rational(x.numerator, x.denominator)
+    assume(pb.eval(xs) != 0)
+    expected = float(pa.eval(xs) / pb.eval(xs))
+    # repr: the same double, the sign of a zero included.
+    assert repr(_ratio(_int_poly(pa), _int_poly(pb), x)) == repr(expected)

@@ -276,6 +276,19 @@ class _IntPoly:
             acc = acc * num + c * power
         return self.scale * Fraction(acc, power)
 
+    def parts_at(self, x: Fraction) -> tuple[int, int]:
+        """(n, d), d > 0, with n/d the exact value at x, unreduced: a float of it is
+        n / d (int division rounds correctly, as float() of the Fraction does), without
+        the gcds a Fraction takes of these large integers."""
+        if not self.coeffs:
+            return 0, 1
+        num, den = x.numerator, x.denominator
+        acc, power = self.coeffs[0], 1
+        for c in self.coeffs[1:]:
+            power *= den
+            acc = acc * num + c * power
+        return self.scale.numerator * acc, self.scale.denominator * power
+
     def lead(self) -> Fraction:
         return self.scale * self.coeffs[0]
 
@@ -1089,9 +1102,10 @@ def _phase_deg(resp: _Resp, w: float) -> float:
     """
     wq = Fraction(w)
     x = wq * wq
-    re = resp.pi.at(x)
-    im = wq * resp.qi.at(x)
-    return math.degrees(math.atan2(float(im), float(re)) - w * resp.t)
+    re_n, re_d = resp.pi.parts_at(x)
+    im_n, im_d = resp.qi.parts_at(x)
+    im = wq.numerator * im_n / (wq.denominator * im_d)
+    return math.degrees(math.atan2(im, re_n / re_d) - w * resp.t)
 
 
 def _gain_crossovers(resp: _Resp, kappa: Fraction) -> tuple[float, ...] | None:
@@ -1187,7 +1201,12 @@ def _negative_somewhere(p: sympy.Poly) -> bool:
 
 def _ratio(a: _IntPoly, b: _IntPoly, x: Fraction) -> float:
     # Exact: a float polyval can lose every digit next to a lightly damped root.
-    return float(a.at(x) / b.at(x))
+    an, ad = a.parts_at(x)
+    bn, bd = b.parts_at(x)
+    num, den = an * bd, ad * bn
+    if den < 0:
+        num, den = -num, -den  # a zero ratio stays +0.0, as the Fraction's float is
+    return num / den  # the exact ratio, rounded once
 
 
 def _gain_margin(
