@@ -656,6 +656,10 @@ class _Resp:
     poles: tuple[complex, ...]
     axis_zeros: tuple[tuple[float, int], ...]  # exact positions, as floats
     axis_poles: tuple[tuple[float, int], ...]
+    # (Im z, -Re z, Re z > 0) for each of zeros and poles, in the same order: what
+    # psi_rough needs for arg(jω - z), unpacked once rather than at every evaluation.
+    zero_args: tuple[tuple[float, float, bool], ...]
+    pole_args: tuple[tuple[float, float, bool], ...]
     lead_negative: bool
     rel_degree: int  # deg D - deg N
     c_inf: float  # |L(∞)|: 0 strictly proper, inf improper
@@ -699,10 +703,16 @@ class _Resp:
     def psi_rough(self, w: float, side: int = 0) -> float:
         """Continuous phase from the factors; `side` picks a limit at an axis root."""
         total = math.pi if self.lead_negative else 0.0
-        for z in self.zeros:
-            total += _factor_arg(w, z)
-        for z in self.poles:
-            total -= _factor_arg(w, z)
+        # arg(jω - z) = atan((ω - Im z)/(-Re z)), plus π right of the axis: continuous in ω
+        # for Re z ≠ 0, where atan2 would jump. Inlined, as the phase searches call this
+        # tens of thousands of times.
+        atan, pi = math.atan, math.pi
+        for im, minus_re, right in self.zero_args:
+            value = atan((w - im) / minus_re)
+            total += value + pi if right else value
+        for im, minus_re, right in self.pole_args:
+            value = atan((w - im) / minus_re)
+            total -= value + pi if right else value
         for wr, m in self.axis_zeros:
             total += m * _axis_arg(w, wr, side)
         for wr, m in self.axis_poles:
@@ -714,12 +724,6 @@ class _Resp:
         fine = cmath.phase(self.l0(w)) - w * self.t
         rough = self.psi_rough(w)
         return fine + _TWO_PI * round((rough - fine) / _TWO_PI)
-
-
-def _factor_arg(w: float, z: complex) -> float:
-    # arg(jω - z), continuous in ω for Re z ≠ 0: the branch jumps of atan2 are avoided.
-    value = math.atan((w - z.imag) / (-z.real))
-    return value + math.pi if z.real > 0 else value
 
 
 def _axis_arg(w: float, wr: float, side: int) -> float:
@@ -771,6 +775,8 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     d2 = _plus(_int_mul(ad, ad), _int_mul(bd, bd))[::2]
     p = _plus(_int_mul(an, ad), _int_mul(bn, bd))[::2]
     q = _plus(_int_mul(bn, ad), [-c for c in _int_mul(an, bd)])[1::2]
+    zeros = _numeric_roots(num, axis_zeros) if not num.is_zero else ()
+    poles = _numeric_roots(den, axis_poles)
     return _Resp(
         num=num,
         den=den,
@@ -788,10 +794,12 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
         dnum_f=tuple(dnum_c.tolist()),
         dden_f=tuple(dden_c.tolist()),
         t=float(delay),
-        zeros=_numeric_roots(num, axis_zeros) if not num.is_zero else (),
-        poles=_numeric_roots(den, axis_poles),
+        zeros=zeros,
+        poles=poles,
         axis_zeros=axis_zeros,
         axis_poles=axis_poles,
+        zero_args=tuple((z.imag, -z.real, z.real > 0) for z in zeros),
+        pole_args=tuple((z.imag, -z.real, z.real > 0) for z in poles),
         lead_negative=bool(lead < 0),
         rel_degree=rel,
         c_inf=c_inf,
@@ -1232,7 +1240,12 @@ def _sensitivity_exact(resp: _Resp, kappa: Fraction) -> tuple[float, float, list
         # every frequency.
         notes.append("1 + L(s) is identically zero: the loop is ill-posed at this gain")
         return math.inf, 0.0, notes
-    on_axis = _roots_x(b.coeffs, include_zero=True)
+    # |D + κN|² in x has no root x ≥ 0 when its constant term is non-zero and its
+    # coefficients keep one sign (Descartes' rule of signs): the usual case, settled
+    # without isolating roots.
+    on_axis: list[Fraction] = []
+    if b.coeffs[-1] == 0 or realroots.sign_variations(b.coeffs) > 0:
+        on_axis = _roots_x(b.coeffs, include_zero=True)
     if on_axis:
         notes.append(
             "a closed-loop pole lies on the imaginary axis: the sensitivity peak is infinite"
