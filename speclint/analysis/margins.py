@@ -1150,14 +1150,19 @@ def _delay_margin(resp: _Resp, kappa: Fraction, gcs: tuple[float, ...]) -> float
     return best
 
 
-@lru_cache(maxsize=256)
 def _phase_crossovers(resp: _Resp, floor: float) -> tuple[tuple[float, float], ...] | None:
     """(ω, |L0(jω)|) at every phase crossover; None when L is real and negative over a band.
 
     With dead time there are infinitely many; beyond the last stationary point of phase and
     magnitude |L0| only falls, so they are listed up to and including the first with
     |L0| < floor: every one left out lies farther from any |L0| = 1/κ ≥ floor than that one.
+    Without dead time the floor plays no part, so every floor shares one remembered list.
     """
+    return _phase_crossovers_to(resp, floor if resp.delay > 0 else 0.0)
+
+
+@lru_cache(maxsize=256)
+def _phase_crossovers_to(resp: _Resp, floor: float) -> tuple[tuple[float, float], ...] | None:
     out: list[tuple[float, float]] = []
     if resp.delay == 0:
         if not resp.qi.coeffs:
