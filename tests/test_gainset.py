@@ -312,3 +312,16 @@ def test_float_and_rational_ends_compare_as_sympy_does(
     exact_of_x = sympy.Rational(x)
     for a, b in ((x, y), (y, x), (x, r), (r, x), (x, exact_of_x), (exact_of_x, x)):
         assert less(a, b) == bool(a < b)
+
+
+@given(st.sampled_from([(1, 2, -431), (1, 2, -(32771**2) * 3 + 1), (1, 4, 4 - 32771 * 32779)]))
+@settings(max_examples=10, deadline=None)
+def test_quadratic_radicals_with_awkward_discriminants(abc: tuple[int, int, int]) -> None:
+    # Reference: sympy's Poly.real_roots. Discriminants 12^3 (a perfect power, which sympy
+    # splits at its base), 4·(3·32771² - ...) and 4·32771·32779 (factors just above sympy's
+    # trial-division limit): the same expressions, however they are built.
+    a, b, c = abc
+    p = sympy.Poly(a * X**2 + b * X + c, X)
+    ours = [to_exact(r) for r in real_roots(coefficients(p))]
+    theirs = sympy_distinct_roots(p)
+    assert [sympy.srepr(r) for r in ours] == [sympy.srepr(r) for r in theirs]

@@ -517,7 +517,9 @@ def _sympy_root(root: Root) -> Exact:
     scaled = _normal([c * scale ** (n - i) for i, c in enumerate(family.poly)])
     if n == 2 and scaled[1] != 0:
         # sympy writes these as radicals (roots_quadratic): built here without its cost.
-        return _times(scale, _quadratic_radicals(*scaled)[root.index])
+        radicals = _quadratic_radicals(*scaled)
+        if radicals is not None:
+            return _times(scale, radicals[root.index])
     pure = sympy.PurePoly(list(scaled), _X, domain=ZZ)
     trivial = rootoftools.CRootOf._roots_trivial(pure, True)
     if trivial is not None:
@@ -546,7 +548,7 @@ def _times(scale: int, x: Exact) -> Exact:
 
 
 @functools.lru_cache(maxsize=1024)
-def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact]:
+def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact] | None:
     """The roots of a·x² + b·x + c (a > 0, b ≠ 0, c ≠ 0, b² - 4ac > 0 and not a square),
     ascending, as the very expressions sympy's roots_quadratic gives: B ∓ q·√r with
     B = -b/(2a), where √(b² - 4ac) = m·√r as sympy's power of an integer writes it, q = m/(2a).
@@ -554,8 +556,12 @@ def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact]:
     sympy reaches that form by evaluating the square root and then the products twice over,
     each time searching the integer for square factors (a millisecond or more); here the
     search runs once, with sympy's own routines, and the expression is assembled from its
-    parts without evaluation (the parts are already in the canonical order)."""
-    m, r = _square_part(b * b - 4 * a * c)
+    parts without evaluation (the parts are already in the canonical order). None where
+    the split is not plainly into primes (then sympy builds the expression itself)."""
+    split = _square_part(b * b - 4 * a * c)
+    if split is None:
+        return None
+    m, r = split
     lead = sympy.Rational(-b, 2 * a)
     radical = sympy.Pow(sympy.Integer(r), sympy.S.Half, evaluate=False)
     q = sympy.Rational(m, 2 * a)
@@ -569,22 +575,27 @@ def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact]:
     )
 
 
-def _square_part(d: int) -> tuple[int, int]:
-    """(m, r) with d = m²·r as sympy's Integer._eval_power splits a square root: the square
-    factors it finds by trial division up to 2^15 and its perfect-power test (d > 0, not a
-    square)."""
+def _square_part(d: int) -> tuple[int, int] | None:
+    """(m, r) with d = m²·r as sympy's Integer._eval_power splits a square root, from the
+    factors sympy's factorint finds with trial division up to 2^15 (d > 0, not a square).
+
+    None unless that split is plain: d not a perfect power (sympy then splits off the
+    power's base as it stands), and every factor left with an odd power a prime (a factor
+    above 2^15 below 2^30 is one, as no smaller prime divides it; a larger one is tested).
+    Then r is square-free, sympy's own √r stays √r, and m·√r is what it writes."""
+    from sympy.ntheory import isprime
     from sympy.ntheory.factor_ import perfect_power
 
-    power = perfect_power(d)
-    if power is not False:
-        found = {int(power[0]): int(power[1])}
-    else:
-        found = sympy.Integer(d).factors(limit=2**15)
+    if perfect_power(d) is not False:
+        return None
     m = r = 1
-    for prime, exponent in found.items():
-        m *= int(prime) ** (exponent // 2)
+    for factor, exponent in sympy.Integer(d).factors(limit=2**15).items():
+        prime = int(factor)
+        m *= prime ** (exponent // 2)
         if exponent % 2:
-            r *= int(prime)
+            if prime >= 2**30 and not isprime(prime):
+                return None
+            r *= prime
     return m, r
 
 
