@@ -1000,10 +1000,58 @@ def _tail_start(resp: _Resp) -> float:
 
 
 def _hits(resp: _Resp, base: float) -> Iterator[_Hit]:
-    """Every point of the path (ω ≥ 0) where the phase meets base modulo 2π, by frequency."""
+    """Every point of the path (ω ≥ 0) where the phase meets base modulo 2π, by frequency.
+
+    The level at -180° is asked for by the stability count, the phase crossovers and the
+    delay-margin set of the same loop, each reading on to its own stopping point: the hits
+    found so far are remembered per (response, level) and only the rest are searched for.
+    """
+    return iter(_hit_stream(resp, base))
+
+
+def _search_hits(resp: _Resp, base: float) -> Iterator[_Hit]:
     tail_from = _tail_start(resp)
     for piece in _pieces(resp):
         yield from _piece_hits(resp, piece, base, tail_from)
+
+
+class _HitStream:
+    """A search for hits read by several callers: what one has found, the next one reads
+    back; an error the search raised is raised again at the same point for every reader."""
+
+    __slots__ = ("error", "found", "search")
+
+    def __init__(self, search: Iterator[_Hit]) -> None:
+        self.search: Iterator[_Hit] | None = search
+        self.found: list[_Hit] = []
+        self.error: BaseException | None = None
+
+    def __iter__(self) -> Iterator[_Hit]:
+        i = 0
+        while True:
+            if i < len(self.found):
+                yield self.found[i]
+                i += 1
+                continue
+            if self.error is not None:
+                raise self.error
+            if self.search is None:
+                return
+            try:
+                hit = next(self.search)
+            except StopIteration:
+                self.search = None
+                return
+            except Exception as exc:
+                self.search = None
+                self.error = exc
+                raise
+            self.found.append(hit)
+
+
+@lru_cache(maxsize=256)
+def _hit_stream(resp: _Resp, base: float) -> _HitStream:
+    return _HitStream(_search_hits(resp, base))
 
 
 def _real_band(resp: _Resp) -> bool:
