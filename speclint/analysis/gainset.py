@@ -553,17 +553,21 @@ def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact] | None:
     ascending, as the very expressions sympy's roots_quadratic gives: B ∓ q·√r with
     B = -b/(2a), where √(b² - 4ac) = m·√r as sympy's power of an integer writes it, q = m/(2a).
 
-    sympy reaches that form by evaluating the square root and then the products twice over,
-    each time searching the integer for square factors (a millisecond or more); here the
-    search runs once, with sympy's own routines, and the expression is assembled from its
-    parts without evaluation (the parts are already in the canonical order). None where
-    the split is not plainly into primes (then sympy builds the expression itself)."""
+    sympy reaches that form by evaluating √(b² - 4ac), which splits off m and evaluates
+    √r, and then the products, which evaluate √r once more (each evaluation a search for
+    square factors, a millisecond or more), and simplifies the sums. Here the first two
+    steps are sympy's own (its factorisation of the discriminant, its √r), the third is
+    the repetition of the second, and the expressions are assembled from the parts
+    without evaluation (in the canonical order). None where √r does not stay √r or the
+    discriminant is a perfect power: sympy then builds the expressions itself."""
     split = _square_part(b * b - 4 * a * c)
     if split is None:
         return None
     m, r = split
+    radical = sympy.Pow(sympy.Integer(r), sympy.S.Half)
+    if not (radical.is_Pow and radical.base == r and radical.exp is sympy.S.Half):
+        return None
     lead = sympy.Rational(-b, 2 * a)
-    radical = sympy.Pow(sympy.Integer(r), sympy.S.Half, evaluate=False)
     q = sympy.Rational(m, 2 * a)
 
     def term(coeff: sympy.Rational) -> Exact:
@@ -577,25 +581,17 @@ def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact] | None:
 
 def _square_part(d: int) -> tuple[int, int] | None:
     """(m, r) with d = m²·r as sympy's Integer._eval_power splits a square root, from the
-    factors sympy's factorint finds with trial division up to 2^15 (d > 0, not a square).
-
-    None unless that split is plain: d not a perfect power (sympy then splits off the
-    power's base as it stands), and every factor left with an odd power a prime (a factor
-    above 2^15 below 2^30 is one, as no smaller prime divides it; a larger one is tested).
-    Then r is square-free, sympy's own √r stays √r, and m·√r is what it writes."""
-    from sympy.ntheory import isprime
+    factors sympy's factorint finds with trial division up to 2^15 (d > 0, not a square);
+    None for a perfect power, which sympy splits at the power's base instead."""
     from sympy.ntheory.factor_ import perfect_power
 
     if perfect_power(d) is not False:
         return None
     m = r = 1
     for factor, exponent in sympy.Integer(d).factors(limit=2**15).items():
-        prime = int(factor)
-        m *= prime ** (exponent // 2)
+        m *= int(factor) ** (exponent // 2)
         if exponent % 2:
-            if prime >= 2**30 and not isprime(prime):
-                return None
-            r *= prime
+            r *= int(factor)
     return m, r
 
 
