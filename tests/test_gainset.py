@@ -8,7 +8,7 @@ import itertools
 from fractions import Fraction
 
 import sympy
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from speclint.analysis import gainset, steady
@@ -325,3 +325,27 @@ def test_quadratic_radicals_with_awkward_discriminants(abc: tuple[int, int, int]
     ours = [to_exact(r) for r in real_roots(coefficients(p))]
     theirs = sympy_distinct_roots(p)
     assert [sympy.srepr(r) for r in ours] == [sympy.srepr(r) for r in theirs]
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.integers(1, 10**30),
+    st.integers(-(10**30), 10**30),
+    st.integers(-(10**30), 10**30).filter(bool),
+)
+def test_quadratic_isolating_intervals_hold_sympys_roots(a: int, b: int, c: int) -> None:
+    # Reference: sympy's Poly.real_roots, evaluated to 200 digits; each interval must hold
+    # exactly its root (ascending, apart) for an irreducible quadratic.
+    p = sympy.Poly(a * X**2 + b * X + c, X)
+    found = sympy.factor_list(p)[1]
+    assume(len(found) == 1 and found[0][1] == 1 and found[0][0].degree() == 2)
+    g = int(sympy.gcd_list([a, b, c]))
+    intervals = gainset._isolate((a // g, b // g, c // g))
+    roots = p.real_roots()
+    assert len(intervals) == len(roots)
+    for (lo, hi), root in zip(intervals, roots, strict=True):
+        value = sympy.N(root, 200)
+        assert sympy.Rational(lo.numerator, lo.denominator) < value
+        assert value < sympy.Rational(hi.numerator, hi.denominator)
+    if len(intervals) == 2:
+        assert intervals[0][1] < intervals[1][0]
