@@ -1042,7 +1042,7 @@ class _HitStream:
             except StopIteration:
                 self.search = None
                 return
-            except Exception as exc:
+            except BaseException as exc:  # a time budget's stop too: never a short list
                 self.search = None
                 self.error = exc
                 raise
