@@ -799,3 +799,28 @@ def test_exact_ratio_of_polynomials_is_rounded_once(
     expected = float(pa.eval(xs) / pb.eval(xs))
     # repr: the same double, the sign of a zero included.
     assert repr(_ratio(_int_poly(pa), _int_poly(pb), x)) == repr(expected)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.integers(-(10**6), 10**6), min_size=1, max_size=9), st.integers(0, 2))
+def test_largest_nonnegative_root_is_sympys(coeffs: list[int], zeros: int) -> None:
+    # Reference: sympy's Poly.real_roots, evaluated to 60 digits; the largest root x ≥ 0
+    # within 1e-20 of its size (or none), and the same rational as the full list's last.
+    from speclint.analysis.margins import _largest_root_x, _roots_x
+
+    p = [*coeffs, *([0] * zeros)]
+    while p and p[0] == 0:
+        p.pop(0)
+    ours = _largest_root_x(p)
+    if len(p) < 2:
+        assert ours is None
+        return
+    poly = sympy.Poly(p, S)
+    nonneg = [sympy.N(r, 60) for r in poly.real_roots() if r >= 0]
+    if not nonneg:
+        assert ours is None
+        return
+    assert ours is not None
+    top = max(nonneg)
+    assert abs(sympy.Rational(ours.numerator, ours.denominator) - top) <= abs(top) * 1e-20
+    assert ours == _roots_x(p, include_zero=True)[-1]

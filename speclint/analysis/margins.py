@@ -1438,11 +1438,32 @@ def _beyond(resp: _Resp, kap: float, ell: float) -> float:
     if ell <= 0.0 or resp.c_inf * kap >= ell:
         return math.inf if resp.rel_degree > 0 and ell > 0 else 0.0
     level = Fraction(ell / kap) ** 2
-    roots = _roots_x(
-        _combine((Fraction(1), resp.n2i), (-level, resp.d2i)).coeffs, include_zero=True
-    )
-    marks = [_tail_start(resp), *(math.sqrt(x) for x in roots)]
+    largest = _largest_root_x(_combine((Fraction(1), resp.n2i), (-level, resp.d2i)).coeffs)
+    marks = [_tail_start(resp), *([] if largest is None else [math.sqrt(largest)])]
     return max(marks) * 1.01
+
+
+def _largest_root_x(p: Sequence[int]) -> Fraction | None:
+    """The largest root x ≥ 0 of the integer polynomial p, the very rational
+    _roots_x(p, include_zero=True) ends with (the same isolation, the same refinement of
+    that root, the others left unrefined); None when there is no such root."""
+    q = list(p)
+    while q and q[0] == 0:
+        q.pop(0)
+    if len(q) < 2:
+        return None
+    zero = q[-1] == 0
+    while q[-1] == 0:
+        q.pop()
+    if len(q) >= 2:
+        sqf = realroots.square_free(q)
+        isolated = realroots.isolate_positive(sqf)
+        if isolated is None:  # the fast search gave up: the exact slow route, all roots
+            roots = _roots_x(p, include_zero=True)
+            return roots[-1] if roots else None
+        if isolated:
+            return realroots.refine(sqf, *isolated[-1])
+    return Fraction(0) if zero else None
 
 
 @_in_double_precision
