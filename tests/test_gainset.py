@@ -8,7 +8,7 @@ import itertools
 from fractions import Fraction
 
 import sympy
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from speclint.analysis import gainset, steady
@@ -210,3 +210,142 @@ def test_variable_scale_is_sympys(coeffs: list[int], base: int, content: int) ->
     scaled = tuple(content * c * base**i for i, c in enumerate(coeffs))  # roots times base
     expected = int(preprocess_roots(sympy.Poly(list(scaled), X, domain=sympy.ZZ))[0])
     assert gainset._variable_scale(scaled) == expected
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.lists(
+        st.lists(st.integers(-60, 60), min_size=2, max_size=5).filter(lambda f: f[0] and f[-1]),
+        min_size=1,
+        max_size=3,
+    )
+)
+def test_irreducible_factors_are_sympys(factors: list[list[int]]) -> None:
+    # Products of random factors (repeated factors and reducible ones among them): the
+    # distinct irreducible factors must be those of sympy's factor_list (a reference library),
+    # each primitive with a positive leading coefficient.
+    p = sympy.Poly(1, X)
+    for f in factors:
+        p *= sympy.Poly(f, X)
+    found = [f.as_poly(X) for f, _m in sympy.factor_list(p.as_expr(), X)[1]]
+    expected = sorted(
+        tuple(int(c) for c in (f if f.LC() > 0 else -f).all_coeffs())
+        for f in found
+        if f.degree() > 0
+    )
+    ints = [int(c) for c in p.all_coeffs()]
+    assert sorted(gainset.irreducible_factors(ints)) == expected
+    if len(expected) > 1 or expected[0] != gainset._normal(ints):
+        # A proof of irreducibility must never be found for a reducible polynomial.
+        assert not gainset._proved_irreducible(ints)
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.integers(1, 10**12),
+    st.integers(-(10**12), 10**12).filter(bool),
+    st.integers(-(10**12), 10**12).filter(bool),
+    st.sampled_from([1, 4, 9, 12, 49 * 3, 8, 2**15 + 3]),
+)
+def test_quadratic_roots_are_sympys_radicals(a: int, b: int, c: int, square: int) -> None:
+    # Reference: sympy's Poly.real_roots (the same objects, printed the same way) for
+    # quadratics with large coefficients; `square` puts square factors (small, and beyond
+    # sympy's trial division) into the discriminant.
+    c *= square
+    p = sympy.Poly(a * X**2 + b * X + c, X)
+    theirs = sympy_distinct_roots(p)
+    ours = [to_exact(r) for r in real_roots(coefficients(p))]
+    assert ours == theirs
+    assert [sympy.srepr(r) for r in ours] == [sympy.srepr(r) for r in theirs]
+    assert [sympy.sstr(r) for r in ours] == [sympy.sstr(r) for r in theirs]
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.sampled_from([X**2 - 2, 7 * X**2 - 30 * X + 11, X**2 - 10**6 * X + 3, 16 * X**4 - 21]),
+    st.integers(0, 1),
+    st.integers(1, 18),
+    st.integers(-9, 9),
+)
+def test_float_ends_against_radicals_compare_as_sympy_does(
+    p: sympy.Expr, index: int, digits: int, offset: int
+) -> None:
+    # Reference: sympy's own `<` between a 15-digit Float and the radical (or 4th root) it
+    # writes for the root; a Float end is compared at its own precision, as sympy does, so
+    # the exact shortcut must agree with sympy wherever it decides.
+    root = to_exact(real_roots(coefficients(sympy.Poly(p, X)))[index])
+    value = sympy.N(root, 40) * (1 + sympy.Rational(offset, 10**digits))
+    end = sympy.Float(float(value), 15)
+    assert less(end, root) == bool(end < root)
+    assert less(root, end) == bool(root < end)
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.integers(-(10**40), 10**40),
+    st.integers(1, 10**40),
+    st.floats(allow_nan=False, allow_infinity=False, min_value=-1e300, max_value=1e300),
+)
+def test_floats_of_rationals_and_float_ends_are_sympys(p: int, q: int, f: float) -> None:
+    # Reference: sympy's evalf to 17 digits, rounded to 15 (the definition to_float states),
+    # for rationals of every size and for 15-digit Float ends.
+    for x in (sympy.Rational(p, q), sympy.Integer(p), sympy.Float(f, 15)):
+        to_float.cache_clear()
+        assert to_float(x) == float(sympy.Float(x.evalf(17), 15))
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.floats(allow_nan=False, allow_infinity=False, min_value=-1e300, max_value=1e300),
+    st.integers(-(10**30), 10**30),
+    st.integers(1, 10**30),
+    st.sampled_from([0, 1, -1, 2**-60]),
+)
+def test_float_and_rational_ends_compare_as_sympy_does(
+    f: float, p: int, q: int, nudge: float
+) -> None:
+    # Reference: sympy's own `<` between Floats and Rationals, which is exact (the Float's
+    # binary value against the rational); `nudge` puts the two Floats next to each other.
+    x = sympy.Float(f, 15)
+    y = sympy.Float(f * (1 + nudge), 15)
+    r = sympy.Rational(p, q)
+    exact_of_x = sympy.Rational(x)
+    for a, b in ((x, y), (y, x), (x, r), (r, x), (x, exact_of_x), (exact_of_x, x)):
+        assert less(a, b) == bool(a < b)
+
+
+@given(st.sampled_from([(1, 2, -431), (1, 2, -(32771**2) * 3 + 1), (1, 4, 4 - 32771 * 32779)]))
+@settings(max_examples=10, deadline=None)
+def test_quadratic_radicals_with_awkward_discriminants(abc: tuple[int, int, int]) -> None:
+    # Reference: sympy's Poly.real_roots. Discriminants 12^3 (a perfect power, which sympy
+    # splits at its base), 4·(3·32771² - ...) and 4·32771·32779 (factors just above sympy's
+    # trial-division limit): the same expressions, however they are built.
+    a, b, c = abc
+    p = sympy.Poly(a * X**2 + b * X + c, X)
+    ours = [to_exact(r) for r in real_roots(coefficients(p))]
+    theirs = sympy_distinct_roots(p)
+    assert [sympy.srepr(r) for r in ours] == [sympy.srepr(r) for r in theirs]
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    st.integers(1, 10**30),
+    st.integers(-(10**30), 10**30),
+    st.integers(-(10**30), 10**30).filter(bool),
+)
+def test_quadratic_isolating_intervals_hold_sympys_roots(a: int, b: int, c: int) -> None:
+    # Reference: sympy's Poly.real_roots, evaluated to 200 digits; each interval must hold
+    # exactly its root (ascending, apart) for an irreducible quadratic.
+    p = sympy.Poly(a * X**2 + b * X + c, X)
+    found = sympy.factor_list(p)[1]
+    assume(len(found) == 1 and found[0][1] == 1 and found[0][0].degree() == 2)
+    g = int(sympy.gcd_list([a, b, c]))
+    intervals = gainset._isolate((a // g, b // g, c // g))
+    roots = p.real_roots()
+    assert len(intervals) == len(roots)
+    for (lo, hi), root in zip(intervals, roots, strict=True):
+        value = sympy.N(root, 200)
+        assert sympy.Rational(lo.numerator, lo.denominator) < value
+        assert value < sympy.Rational(hi.numerator, hi.denominator)
+    if len(intervals) == 2:
+        assert intervals[0][1] < intervals[1][0]

@@ -720,3 +720,107 @@ def test_slow_undamped_pole_pair_is_not_counted_as_unstable() -> None:
         z = rhp_closed_loop_roots(S + 3, S**2 + sympy.Rational(1, 400), k, 0.1)
         assert z == pytest.approx(round(z), abs=0.05)
         assert delayed.gains.contains(sympy.Float(k)) == (round(z) == 0)
+
+
+# The discriminant behind the sensitivity-peak gain set: a resultant computed by evaluation and
+# interpolation, checked against sympy's own resultant of the same bivariate polynomials.
+_ROW = st.lists(st.integers(-(10**12), 10**12), min_size=3, max_size=3)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(_ROW, min_size=2, max_size=8))
+def test_resultant_in_x_matches_sympy(rows: list[list[int]]) -> None:
+    from speclint.analysis.margins import _resultant_in_x
+
+    assume(any(rows[0]))
+    x, k = sympy.symbols("x k")
+    n = len(rows) - 1
+    f = sum((a * k**2 + b * k + c) * x ** (n - i) for i, (a, b, c) in enumerate(rows))
+    # sympy's resultant over the integers (a reference library): the Sylvester determinant
+    # of F and dF/dx in x, a polynomial in k.
+    ref = sympy.Poly(sympy.resultant(f, sympy.diff(f, x), x), k)
+    expected = [int(c) for c in ref.all_coeffs()] if not ref.is_zero else []
+    assert _resultant_in_x(rows) == expected
+
+
+@pytest.mark.parametrize(("num", "den", "t", "name", "value", "k_max"), SWEEPS)
+def test_margin_gain_sets_within_limits_against_a_dense_sweep(
+    num: sympy.Expr, den: sympy.Expr, t: Fraction | None, name: str, value: float, k_max: float
+) -> None:
+    # The same sweep with limits on the gain (a band inside the swept range, closed at both
+    # ends): inside it the set is the criterion point by point, outside it there is no gain.
+    import dataclasses
+
+    lo, hi = Fraction(1, 10), Fraction(k_max) / 3
+    loop = dataclasses.replace(make_loop(num, den, delay=t), limits=GainSet.between(lo, hi))
+    gains = margin_gains(loop, **{name: value})
+    edges = ends(gains)
+    for k in np.geomspace(0.02, k_max, 60):
+        if any(abs(k - e) < 1e-6 * e for e in edges):
+            continue
+        inside = lo <= Fraction(float(k)) <= hi
+        m = margins_at(loop, Fraction(float(k)))
+        expected = inside and _criterion_holds(m, name, float(value))
+        assert gains.contains(sympy.Float(k)) == expected, k
+
+
+@settings(max_examples=50, deadline=None)
+@given(st.dictionaries(st.integers(0, 12), st.fractions().filter(bool), max_size=8))
+def test_polynomials_in_s_are_sympys(terms: dict[int, Fraction]) -> None:
+    # Reference: sympy's Poly.from_dict over the rationals; the same polynomial (equal, with
+    # the same hash, so the per-loop caches keyed on it still meet).
+    from speclint.analysis.margins import _poly_s
+
+    given_terms = {(i,): sympy.Rational(c.numerator, c.denominator) for i, c in terms.items()}
+    ours = _poly_s(dict(given_terms))
+    theirs = sympy.Poly.from_dict(dict(given_terms) or {(0,): 0}, S, domain=sympy.QQ)
+    assert ours == theirs and hash(ours) == hash(theirs)
+    assert ours.rep.to_list() == theirs.rep.to_list()
+
+
+_SMALL_POLY = st.lists(st.integers(-(10**30), 10**30), min_size=1, max_size=10).filter(
+    lambda c: c[0] != 0
+)
+
+
+@settings(max_examples=80, deadline=None)
+@given(_SMALL_POLY, _SMALL_POLY, st.fractions(min_value=-(10**6), max_value=10**6))
+def test_exact_ratio_of_polynomials_is_rounded_once(
+    a: list[int], b: list[int], x: Fraction
+) -> None:
+    # Reference: sympy's exact evaluation of both polynomials and its correctly rounded float
+    # of the quotient (Rational.__float__ rounds to nearest).
+    from speclint.analysis.margins import _int_poly, _ratio
+
+    pa = sympy.Poly([sympy.Rational(c, 7) for c in a], S, domain=sympy.QQ)
+    pb = sympy.Poly([sympy.Rational(c, 3) for c in b], S, domain=sympy.QQ)
+    xs = sympy.Rational(x.numerator, x.denominator)
+    assume(pb.eval(xs) != 0)
+    expected = float(pa.eval(xs) / pb.eval(xs))
+    # repr: the same double, the sign of a zero included.
+    assert repr(_ratio(_int_poly(pa), _int_poly(pb), x)) == repr(expected)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.integers(-(10**6), 10**6), min_size=1, max_size=9), st.integers(0, 2))
+def test_largest_nonnegative_root_is_sympys(coeffs: list[int], zeros: int) -> None:
+    # Reference: sympy's Poly.real_roots, evaluated to 60 digits; the largest root x ≥ 0
+    # within 1e-20 of its size (or none), and the same rational as the full list's last.
+    from speclint.analysis.margins import _largest_root_x, _roots_x
+
+    p = [*coeffs, *([0] * zeros)]
+    while p and p[0] == 0:
+        p.pop(0)
+    ours = _largest_root_x(p)
+    if len(p) < 2:
+        assert ours is None
+        return
+    poly = sympy.Poly(p, S)
+    nonneg = [sympy.N(r, 60) for r in poly.real_roots() if r >= 0]
+    if not nonneg:
+        assert ours is None
+        return
+    assert ours is not None
+    top = max(nonneg)
+    assert abs(sympy.Rational(ours.numerator, ours.denominator) - top) <= abs(top) * 1e-20
+    assert ours == _roots_x(p, include_zero=True)[-1]

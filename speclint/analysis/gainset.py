@@ -26,6 +26,13 @@ from itertools import pairwise
 from typing import TypeAlias
 
 import sympy
+from mpmath.libmp import (  # type: ignore[import-untyped]
+    from_int,
+    from_rational,
+    fzero,
+    mpf_pos,
+)
+from mpmath.libmp import to_float as mpf_to_float
 from sympy.polys.domains import QQ, ZZ
 
 from speclint.analysis import realroots
@@ -62,6 +69,7 @@ Number: TypeAlias = "Fraction | Root"
 
 _X = sympy.Symbol("x")  # the variable sympy writes CRootOf polynomials in
 _NEG_INF = sympy.S.NegativeInfinity
+_FZERO = fzero  # mpmath's zero
 # Exact bisection steps before a comparison hands over to sympy (two different algebraic
 # numbers always part; this only bounds the work on pathological inputs).
 _MAX_BISECTIONS = 4000
@@ -281,10 +289,150 @@ def irreducible_factors(p: Sequence[int]) -> list[tuple[int, ...]]:
         # two rational roots (-b ± r)/(2a), each giving a linear factor q·x - p
         found = {_normal([q.denominator, -q.numerator]) for q in _quadratic_roots(a, b, r)}
         return sorted(found)
+    if _proved_irreducible(p):
+        return [_normal(p)]
     from sympy.polys.factortools import dup_factor_list
 
     _, factors = dup_factor_list([int(c) for c in p], ZZ)
     return [_normal([int(c) for c in f]) for f, _ in factors if len(f) > 1]
+
+
+# Small primes for the irreducibility test: arithmetic modulo them stays in machine-sized
+# integers, and a dozen of them settle almost every polynomial the analysis meets.
+_TEST_PRIMES = (101, 103, 107, 109, 113, 127, 131, 137, 139, 149, 151, 157)
+
+
+def _proved_irreducible(p: Sequence[int]) -> bool:
+    """True when p (integers, highest power first, degree ≥ 2) is irreducible over the
+    rationals, proved from its factorisation patterns modulo small primes; False when the
+    test cannot tell (sympy's factorisation decides then).
+
+    Were p = g·h over the integers (Gauss's lemma), a prime q dividing neither p's leading
+    coefficient nor its discriminant would keep deg g, and g mod q would be a product of
+    some of the distinct irreducible factors of p mod q: deg g is a sum of some of their
+    degrees for every such q. When no degree between 1 and deg p - 1 is such a sum for all
+    the primes tried, p has no proper factor (the degree-pattern argument behind factoring
+    modulo primes; J. von zur Gathen and J. Gerhard, "Modern Computer Algebra", from
+    memory). The patterns come from distinct-degree factorisation modulo q."""
+    n = len(p) - 1
+    possible = set(range(1, n))
+    for q in _TEST_PRIMES:
+        if p[0] % q == 0:
+            continue
+        degrees = _factor_degrees_mod(p, q)
+        if degrees is None:
+            continue  # q divides the discriminant
+        sums = {0}
+        for d in degrees:
+            sums |= {s + d for s in sums}
+        possible &= sums
+        if not possible:
+            return True
+    return False
+
+
+def _factor_degrees_mod(p: Sequence[int], q: int) -> list[int] | None:
+    """Degrees of the irreducible factors of p modulo the prime q (q not dividing p's
+    leading coefficient), by distinct-degree factorisation; None when p is not square-free
+    modulo q."""
+    f = _monic_mod([c % q for c in reversed(p)], q)  # lowest power first from here on
+    if len(_gcd_mod(f, _derivative_mod(f, q), q)) > 1:
+        return None
+    degrees: list[int] = []
+    h = [0, 1]  # x
+    d = 0
+    while 2 * (d + 1) <= len(f) - 1:
+        d += 1
+        h = _pow_mod(h, q, f, q)  # x^(q^d) modulo f
+        g = _gcd_mod(f, _sub_mod(h, [0, 1], q), q)
+        if len(g) > 1:
+            degrees += [d] * ((len(g) - 1) // d)
+            f = _div_mod(f, g, q)
+            h = _rem_mod(h, f, q)
+    if len(f) > 1:
+        degrees.append(len(f) - 1)
+    return degrees
+
+
+def _trim_mod(a: list[int]) -> list[int]:
+    while a and a[-1] == 0:
+        a.pop()
+    return a
+
+
+def _monic_mod(a: list[int], q: int) -> list[int]:
+    a = _trim_mod(a)
+    inv = pow(a[-1], -1, q)
+    return [c * inv % q for c in a]
+
+
+def _derivative_mod(a: Sequence[int], q: int) -> list[int]:
+    return _trim_mod([i * a[i] % q for i in range(1, len(a))])
+
+
+def _sub_mod(a: Sequence[int], b: Sequence[int], q: int) -> list[int]:
+    size = max(len(a), len(b))
+    out = [((a[i] if i < len(a) else 0) - (b[i] if i < len(b) else 0)) % q for i in range(size)]
+    return _trim_mod(out)
+
+
+def _rem_mod(a: Sequence[int], f: Sequence[int], q: int) -> list[int]:
+    """a modulo the monic f."""
+    r = list(a)
+    m = len(f) - 1
+    for top in range(len(r) - 1, m - 1, -1):
+        c = r[top]
+        if c:
+            base = top - m
+            for i in range(m):
+                r[base + i] = (r[base + i] - c * f[i]) % q
+        r[top] = 0
+    return _trim_mod(r[:m] if len(r) > m else r)
+
+
+def _div_mod(a: Sequence[int], f: Sequence[int], q: int) -> list[int]:
+    """The quotient of a by the monic f (an exact division)."""
+    r = list(a)
+    m = len(f) - 1
+    out = [0] * (len(r) - m)
+    for top in range(len(r) - 1, m - 1, -1):
+        c = r[top]
+        out[top - m] = c
+        if c:
+            base = top - m
+            for i in range(m + 1):
+                r[base + i] = (r[base + i] - c * f[i]) % q
+    return _trim_mod(out)
+
+
+def _mul_mod(a: Sequence[int], b: Sequence[int], f: Sequence[int], q: int) -> list[int]:
+    prod = [0] * (len(a) + len(b) - 1) if a and b else []
+    for i, x in enumerate(a):
+        if x:
+            for j, y in enumerate(b):
+                prod[i + j] += x * y
+    return _rem_mod([c % q for c in prod], f, q)
+
+
+def _pow_mod(a: list[int], e: int, f: Sequence[int], q: int) -> list[int]:
+    result = [1]
+    while e:
+        if e & 1:
+            result = _mul_mod(result, a, f, q)
+        e >>= 1
+        if e:
+            a = _mul_mod(a, a, f, q)
+    return result
+
+
+def _gcd_mod(a: list[int], b: list[int], q: int) -> list[int]:
+    """The monic gcd (a ≠ 0)."""
+    a = _monic_mod(list(a), q)
+    b = _trim_mod(list(b))
+    while b:
+        b = _monic_mod(b, q)
+        a, b = b, _rem_mod(a, b, q)
+    return a
 
 
 def _quadratic_roots(a: int, b: int, r: int) -> tuple[Fraction, Fraction]:
@@ -312,6 +460,8 @@ def _integer_poly(coeffs: Sequence[Fraction]) -> list[int]:
 def _isolate(p: tuple[int, ...]) -> list[tuple[Fraction, Fraction]]:
     """Isolating intervals of every real root of the irreducible p (degree ≥ 2, so no
     rational roots and p(0) ≠ 0), ascending."""
+    if len(p) == 3:
+        return _quadratic_intervals(*p)
     positive = realroots.isolate_positive(p)
     mirrored = [c if (len(p) - 1 - i) % 2 == 0 else -c for i, c in enumerate(p)]
     negative = realroots.isolate_positive(mirrored)
@@ -322,6 +472,27 @@ def _isolate(p: tuple[int, ...]) -> list[tuple[Fraction, Fraction]]:
         found = dup_isolate_real_roots_sqf(list(p), ZZ)
         return [(_from_qq(lo), _from_qq(hi)) for (lo, hi) in found]
     return [(-hi, -lo) for lo, hi in reversed(negative)] + positive
+
+
+def _quadratic_intervals(a: int, b: int, c: int) -> list[tuple[Fraction, Fraction]]:
+    """Isolating intervals of the real roots of the irreducible a·x² + b·x + c (a > 0):
+    (-b ∓ √D)/(2a) with √D, D = b² - 4ac not a square, between s/2^k and (s + 1)/2^k for
+    s = isqrt(D·4^k) (strictly: D·4^k is no square either). The two intervals part as
+    s ≥ 1, and their ends, rational, are not roots. k makes them narrow next to the
+    smaller root, |r| ≥ 2|c|/(|b| + √D), so that comparisons rarely need to narrow them;
+    root isolation by the general search costs a millisecond here."""
+    d = b * b - 4 * a * c
+    if d < 0:
+        return []
+    size = (abs(b) + math.isqrt(d) + 1).bit_length() - (4 * a * abs(c)).bit_length()
+    k = 70 + max(size + 1, 0)
+    s = math.isqrt(d << (2 * k))
+    den = 2 * a << k
+    top = -b << k
+    return [
+        (Fraction(top - s - 1, den), Fraction(top - s, den)),
+        (Fraction(top + s, den), Fraction(top + s + 1, den)),
+    ]
 
 
 def _from_qq(x: object) -> Fraction:
@@ -367,6 +538,11 @@ def _sympy_root(root: Root) -> Exact:
     n = len(family.poly) - 1
     # p(c·y) with integer coefficients, made primitive: the factor sympy finds.
     scaled = _normal([c * scale ** (n - i) for i, c in enumerate(family.poly)])
+    if n == 2 and scaled[1] != 0:
+        # sympy writes these as radicals (roots_quadratic): built here without its cost.
+        radicals = _quadratic_radicals(*scaled)
+        if radicals is not None:
+            return _times(scale, radicals[root.index])
     pure = sympy.PurePoly(list(scaled), _X, domain=ZZ)
     trivial = rootoftools.CRootOf._roots_trivial(pure, True)
     if trivial is not None:
@@ -386,7 +562,60 @@ def _sympy_root(root: Root) -> Exact:
                 for r in family.roots
             ]
         base = rootoftools.CRootOf._new(pure, root.index)
-    return sympy.Integer(scale) * base
+    return _times(scale, base)
+
+
+def _times(scale: int, x: Exact) -> Exact:
+    # 1·x is x itself; sympy's product would still spend a millisecond on a CRootOf.
+    return x if scale == 1 else sympy.Integer(scale) * x
+
+
+@functools.lru_cache(maxsize=1024)
+def _quadratic_radicals(a: int, b: int, c: int) -> tuple[Exact, Exact] | None:
+    """The roots of a·x² + b·x + c (a > 0, b ≠ 0, c ≠ 0, b² - 4ac > 0 and not a square),
+    ascending, as the very expressions sympy's roots_quadratic gives: B ∓ q·√r with
+    B = -b/(2a), where √(b² - 4ac) = m·√r as sympy's power of an integer writes it, q = m/(2a).
+
+    sympy reaches that form by evaluating √(b² - 4ac), which splits off m and evaluates
+    √r, and then the products, which evaluate √r once more (each evaluation a search for
+    square factors, a millisecond or more), and simplifies the sums. Here the first two
+    steps are sympy's own (its factorisation of the discriminant, its √r), the third is
+    the repetition of the second, and the expressions are assembled from the parts
+    without evaluation (in the canonical order). None where √r does not stay √r or the
+    discriminant is a perfect power: sympy then builds the expressions itself."""
+    split = _square_part(b * b - 4 * a * c)
+    if split is None:
+        return None
+    m, r = split
+    radical = sympy.Pow(sympy.Integer(r), sympy.S.Half)
+    if not (radical.is_Pow and radical.base == r and radical.exp is sympy.S.Half):
+        return None
+    lead = sympy.Rational(-b, 2 * a)
+    q = sympy.Rational(m, 2 * a)
+
+    def term(coeff: sympy.Rational) -> Exact:
+        return radical if coeff == 1 else sympy.Mul(coeff, radical, evaluate=False)
+
+    return (
+        sympy.Add(lead, term(-q), evaluate=False),
+        sympy.Add(lead, term(q), evaluate=False),
+    )
+
+
+def _square_part(d: int) -> tuple[int, int] | None:
+    """(m, r) with d = m²·r as sympy's Integer._eval_power splits a square root, from the
+    factors sympy's factorint finds with trial division up to 2^15 (d > 0, not a square);
+    None for a perfect power, which sympy splits at the power's base instead."""
+    from sympy.ntheory.factor_ import perfect_power
+
+    if perfect_power(d) is not False:
+        return None
+    m = r = 1
+    for factor, exponent in sympy.Integer(d).factors(limit=2**15).items():
+        m *= int(factor) ** (exponent // 2)
+        if exponent % 2:
+            r *= int(factor)
+    return m, r
 
 
 def _qq(x: Fraction) -> object:
@@ -406,12 +635,63 @@ def less(a: Exact, b: Exact) -> bool:
         return True
     if a.is_Rational and b.is_Rational:
         return bool(a.p * b.q < b.p * a.q)  # denominators are positive
+    ra, rb = _ratio(a), _ratio(b)
+    if ra is not None and rb is not None:
+        return ra[0] * rb[1] < rb[0] * ra[1]
     na, nb = as_number(a), as_number(b)
-    if na is not None and nb is not None and not _float_against_form(a, na, b, nb):
-        decided = _number_less(na, nb)
+    if na is not None and nb is not None:
+        if _float_against_form(a, na, b, nb):
+            decided = _clearly_less(na, nb)
+        else:
+            decided = _number_less(na, nb)
         if decided is not None:
             return decided
     return _sympy_less(a, b)
+
+
+def _ratio(x: Exact) -> tuple[int, int] | None:
+    """(n, d), d > 0, with x = n/d for a rational or a finite Float (the binary number it
+    holds: mantissa·2^exponent); None for other numbers. Comparing these in integers is
+    the exact comparison of the values, without a Fraction (and its gcd) for each."""
+    if x.is_Rational:
+        return int(x.p), int(x.q)
+    if x.is_Float:
+        sign, man, exp, _bits = x._mpf_
+        if not man:
+            return (0, 1) if x._mpf_ == _FZERO else None  # inf and nan have no mantissa
+        n = -int(man) if sign else int(man)
+        return (n << exp, 1) if exp >= 0 else (n, 1 << -exp)
+    return None
+
+
+def _clearly_less(a: Number, b: Number) -> bool | None:
+    """a < b for a Float end (a rational) against an algebraic number sympy writes as a
+    radical or a multiple of a CRootOf, where sympy's comparison, made at the Float's
+    precision, is sure to agree with the exact order; None when they are too close to tell.
+
+    sympy rounds to 53 bits either the other number or, for a radical, the Float plus the
+    radical's rational part; every term involved is at most |F| + R in size, R a bound on
+    the roots of the number's polynomial (a radical's rational part and its surd are half
+    the sum and half the difference of the two roots, so neither exceeds the larger one).
+    A gap wider than 2^-40 times that size leaves no doubt about the order sympy finds."""
+    if isinstance(a, Fraction):
+        if not isinstance(b, Root):
+            return None
+        flip = _clearly_less(b, a)
+        return None if flip is None else not flip
+    if not isinstance(b, Fraction):
+        return None
+    p = a.family.poly
+    size = abs(b) + 1 + Fraction(max(abs(c) for c in p[1:]), abs(p[0]))  # Cauchy's bound
+    tol = size / 2**40
+    while True:
+        if a.hi < b - tol:
+            return True
+        if a.lo > b + tol:
+            return False
+        if a.hi - a.lo < tol:
+            return None
+        a.narrow()
 
 
 def _float_against_form(a: Exact, na: Number, b: Exact, nb: Number) -> bool:
@@ -695,10 +975,25 @@ def to_float(x: Exact) -> float:
         return float("inf")
     if x == -INF:
         return float("-inf")
+    if x.is_Rational:
+        p, q = int(x.p), int(x.q)
+        return _as_sympy_rounds(from_int(p, 64) if q == 1 else from_rational(p, q, 64))
+    if x.is_Float:
+        return _as_sympy_rounds(x._mpf_)
     root = _KNOWN.get(x)
     if root is not None:
         return _float_of(root)
     return float(sympy.Float(x.evalf(17), 15))
+
+
+def _as_sympy_rounds(mpf: tuple[int, int, int, int]) -> float:
+    """float(sympy.Float(x.evalf(17), 15)) for a rational or Float x, given x as sympy's evalf
+    first evaluates it (to 64 bits for 17 digits: from_int/from_rational, or the Float's own
+    value): the same roundings, to 60 bits and then to 53, without building the sympy
+    objects in between (tens of microseconds each, thousands of times a run)."""
+    from sympy.core.numbers import mpf_norm
+
+    return float(mpf_to_float(mpf_norm(mpf_norm(mpf, 60), 53)))
 
 
 def _float_of(root: Root) -> float:
@@ -706,12 +1001,10 @@ def _float_of(root: Root) -> float:
     (evalf to 17 digits), then at 53 (15 digits). Found exactly, by narrowing the root's
     interval until both ends round alike at 60 bits, instead of by sympy's refinement of
     a CRootOf interval (a millisecond each)."""
-    from mpmath.libmp import from_rational, mpf_pos, to_float  # type: ignore[import-untyped]
-
     while True:
         lo = from_rational(root.lo.numerator, root.lo.denominator, 60, "n")
         if lo == from_rational(root.hi.numerator, root.hi.denominator, 60, "n"):
-            return float(to_float(mpf_pos(lo, 53, "n")))
+            return float(mpf_to_float(mpf_pos(lo, 53, "n")))
         root.narrow()
 
 

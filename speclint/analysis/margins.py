@@ -112,6 +112,10 @@ _OUT_OF_RANGE = (
 # time must each be representable, and their ratios must leave room for the powers of ω that
 # an evaluation forms. Beyond this span a phase or magnitude is rounding noise.
 _FLOAT_SPAN = 1e150
+# The same bounds as exact rationals: a Fraction compares with a float by converting the
+# float exactly, so comparing with these gives the same answers without converting each time.
+_SPAN_EXACT = Fraction(_FLOAT_SPAN)
+_SPAN_INVERSE_EXACT = Fraction(1 / _FLOAT_SPAN)
 
 
 @dataclass(frozen=True, slots=True)
@@ -145,7 +149,21 @@ class DelayedStability:
 
 
 def _poly_s(terms: dict[tuple[int, ...], sympy.Rational]) -> sympy.Poly:
-    return sympy.Poly.from_dict(terms or {(0,): 0}, S, domain=sympy.QQ)
+    if not terms:
+        return sympy.Poly.from_dict({(0,): 0}, S, domain=sympy.QQ)
+    # The dense rational list directly: the same Poly as Poly.from_dict builds (equal,
+    # same hash), without its options processing and conversions (~0.15 ms a call).
+    from sympy.polys.polyclasses import DMP
+
+    qq = sympy.QQ
+    n = max(i for (i,) in terms)
+    coeffs = [qq.zero] * (n + 1)
+    for (i,), c in terms.items():
+        coeffs[n - i] = qq(int(c.p), int(c.q))
+    start = 0
+    while start < n and not coeffs[start]:
+        start += 1
+    return sympy.Poly.new(DMP.from_list(coeffs[start:], 0, qq), S)
 
 
 def _jw_parts(p: sympy.Poly) -> tuple[sympy.Poly, sympy.Poly]:
@@ -257,6 +275,19 @@ class _IntPoly:
             power *= den
             acc = acc * num + c * power
         return self.scale * Fraction(acc, power)
+
+    def parts_at(self, x: Fraction) -> tuple[int, int]:
+        """(n, d), d > 0, with n/d the exact value at x, unreduced: a float of it is
+        n / d (int division rounds correctly, as float() of the Fraction does), without
+        the gcds a Fraction takes of these large integers."""
+        if not self.coeffs:
+            return 0, 1
+        num, den = x.numerator, x.denominator
+        acc, power = self.coeffs[0], 1
+        for c in self.coeffs[1:]:
+            power *= den
+            acc = acc * num + c * power
+        return self.scale.numerator * acc, self.scale.denominator * power
 
     def lead(self) -> Fraction:
         return self.scale * self.coeffs[0]
@@ -591,9 +622,9 @@ def _check_range(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> None:
     sizes = [abs(_fraction(c)) for p in (num, den) for c in p.rep.to_list() if c != 0]
     if delay:
         sizes.append(delay)
-    if sizes and max(sizes) / min(sizes) > _FLOAT_SPAN:
+    if sizes and max(sizes) / min(sizes) > _SPAN_EXACT:
         raise MarginsUnsupported(_OUT_OF_RANGE)
-    if any(not 1 / _FLOAT_SPAN <= x <= _FLOAT_SPAN for x in sizes):
+    if any(not _SPAN_INVERSE_EXACT <= x <= _SPAN_EXACT for x in sizes):
         raise MarginsUnsupported(_OUT_OF_RANGE)
 
 
@@ -625,6 +656,10 @@ class _Resp:
     poles: tuple[complex, ...]
     axis_zeros: tuple[tuple[float, int], ...]  # exact positions, as floats
     axis_poles: tuple[tuple[float, int], ...]
+    # (Im z, -Re z, Re z > 0) for each of zeros and poles, in the same order: what
+    # psi_rough needs for arg(jω - z), unpacked once rather than at every evaluation.
+    zero_args: tuple[tuple[float, float, bool], ...]
+    pole_args: tuple[tuple[float, float, bool], ...]
     lead_negative: bool
     rel_degree: int  # deg D - deg N
     c_inf: float  # |L(∞)|: 0 strictly proper, inf improper
@@ -668,10 +703,16 @@ class _Resp:
     def psi_rough(self, w: float, side: int = 0) -> float:
         """Continuous phase from the factors; `side` picks a limit at an axis root."""
         total = math.pi if self.lead_negative else 0.0
-        for z in self.zeros:
-            total += _factor_arg(w, z)
-        for z in self.poles:
-            total -= _factor_arg(w, z)
+        # arg(jω - z) = atan((ω - Im z)/(-Re z)), plus π right of the axis: continuous in ω
+        # for Re z ≠ 0, where atan2 would jump. Inlined, as the phase searches call this
+        # tens of thousands of times.
+        atan, pi = math.atan, math.pi
+        for im, minus_re, right in self.zero_args:
+            value = atan((w - im) / minus_re)
+            total += value + pi if right else value
+        for im, minus_re, right in self.pole_args:
+            value = atan((w - im) / minus_re)
+            total -= value + pi if right else value
         for wr, m in self.axis_zeros:
             total += m * _axis_arg(w, wr, side)
         for wr, m in self.axis_poles:
@@ -683,12 +724,6 @@ class _Resp:
         fine = cmath.phase(self.l0(w)) - w * self.t
         rough = self.psi_rough(w)
         return fine + _TWO_PI * round((rough - fine) / _TWO_PI)
-
-
-def _factor_arg(w: float, z: complex) -> float:
-    # arg(jω - z), continuous in ω for Re z ≠ 0: the branch jumps of atan2 are avoided.
-    value = math.atan((w - z.imag) / (-z.real))
-    return value + math.pi if z.real > 0 else value
 
 
 def _axis_arg(w: float, wr: float, side: int) -> float:
@@ -740,6 +775,8 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
     d2 = _plus(_int_mul(ad, ad), _int_mul(bd, bd))[::2]
     p = _plus(_int_mul(an, ad), _int_mul(bn, bd))[::2]
     q = _plus(_int_mul(bn, ad), [-c for c in _int_mul(an, bd)])[1::2]
+    zeros = _numeric_roots(num, axis_zeros) if not num.is_zero else ()
+    poles = _numeric_roots(den, axis_poles)
     return _Resp(
         num=num,
         den=den,
@@ -757,10 +794,12 @@ def _resp(num: sympy.Poly, den: sympy.Poly, delay: Fraction) -> _Resp:
         dnum_f=tuple(dnum_c.tolist()),
         dden_f=tuple(dden_c.tolist()),
         t=float(delay),
-        zeros=_numeric_roots(num, axis_zeros) if not num.is_zero else (),
-        poles=_numeric_roots(den, axis_poles),
+        zeros=zeros,
+        poles=poles,
         axis_zeros=axis_zeros,
         axis_poles=axis_poles,
+        zero_args=tuple((z.imag, -z.real, z.real > 0) for z in zeros),
+        pole_args=tuple((z.imag, -z.real, z.real > 0) for z in poles),
         lead_negative=bool(lead < 0),
         rel_degree=rel,
         c_inf=c_inf,
@@ -961,10 +1000,58 @@ def _tail_start(resp: _Resp) -> float:
 
 
 def _hits(resp: _Resp, base: float) -> Iterator[_Hit]:
-    """Every point of the path (ω ≥ 0) where the phase meets base modulo 2π, by frequency."""
+    """Every point of the path (ω ≥ 0) where the phase meets base modulo 2π, by frequency.
+
+    The level at -180° is asked for by the stability count, the phase crossovers and the
+    delay-margin set of the same loop, each reading on to its own stopping point: the hits
+    found so far are remembered per (response, level) and only the rest are searched for.
+    """
+    return iter(_hit_stream(resp, base))
+
+
+def _search_hits(resp: _Resp, base: float) -> Iterator[_Hit]:
     tail_from = _tail_start(resp)
     for piece in _pieces(resp):
         yield from _piece_hits(resp, piece, base, tail_from)
+
+
+class _HitStream:
+    """A search for hits read by several callers: what one has found, the next one reads
+    back; an error the search raised is raised again at the same point for every reader."""
+
+    __slots__ = ("error", "found", "search")
+
+    def __init__(self, search: Iterator[_Hit]) -> None:
+        self.search: Iterator[_Hit] | None = search
+        self.found: list[_Hit] = []
+        self.error: BaseException | None = None
+
+    def __iter__(self) -> Iterator[_Hit]:
+        i = 0
+        while True:
+            if i < len(self.found):
+                yield self.found[i]
+                i += 1
+                continue
+            if self.error is not None:
+                raise self.error
+            if self.search is None:
+                return
+            try:
+                hit = next(self.search)
+            except StopIteration:
+                self.search = None
+                return
+            except BaseException as exc:  # a time budget's stop too: never a short list
+                self.search = None
+                self.error = exc
+                raise
+            self.found.append(hit)
+
+
+@lru_cache(maxsize=256)
+def _hit_stream(resp: _Resp, base: float) -> _HitStream:
+    return _HitStream(_search_hits(resp, base))
 
 
 def _real_band(resp: _Resp) -> bool:
@@ -1071,9 +1158,10 @@ def _phase_deg(resp: _Resp, w: float) -> float:
     """
     wq = Fraction(w)
     x = wq * wq
-    re = resp.pi.at(x)
-    im = wq * resp.qi.at(x)
-    return math.degrees(math.atan2(float(im), float(re)) - w * resp.t)
+    re_n, re_d = resp.pi.parts_at(x)
+    im_n, im_d = resp.qi.parts_at(x)
+    im = wq.numerator * im_n / (wq.denominator * im_d)
+    return math.degrees(math.atan2(im, re_n / re_d) - w * resp.t)
 
 
 def _gain_crossovers(resp: _Resp, kappa: Fraction) -> tuple[float, ...] | None:
@@ -1110,14 +1198,19 @@ def _delay_margin(resp: _Resp, kappa: Fraction, gcs: tuple[float, ...]) -> float
     return best
 
 
-@lru_cache(maxsize=256)
 def _phase_crossovers(resp: _Resp, floor: float) -> tuple[tuple[float, float], ...] | None:
     """(ω, |L0(jω)|) at every phase crossover; None when L is real and negative over a band.
 
     With dead time there are infinitely many; beyond the last stationary point of phase and
     magnitude |L0| only falls, so they are listed up to and including the first with
     |L0| < floor: every one left out lies farther from any |L0| = 1/κ ≥ floor than that one.
+    Without dead time the floor plays no part, so every floor shares one remembered list.
     """
+    return _phase_crossovers_to(resp, floor if resp.delay > 0 else 0.0)
+
+
+@lru_cache(maxsize=256)
+def _phase_crossovers_to(resp: _Resp, floor: float) -> tuple[tuple[float, float], ...] | None:
     out: list[tuple[float, float]] = []
     if resp.delay == 0:
         if not resp.qi.coeffs:
@@ -1169,7 +1262,12 @@ def _negative_somewhere(p: sympy.Poly) -> bool:
 
 def _ratio(a: _IntPoly, b: _IntPoly, x: Fraction) -> float:
     # Exact: a float polyval can lose every digit next to a lightly damped root.
-    return float(a.at(x) / b.at(x))
+    an, ad = a.parts_at(x)
+    bn, bd = b.parts_at(x)
+    num, den = an * bd, ad * bn
+    if den < 0:
+        num, den = -num, -den  # a zero ratio stays +0.0, as the Fraction's float is
+    return num / den  # the exact ratio, rounded once
 
 
 def _gain_margin(
@@ -1195,7 +1293,12 @@ def _sensitivity_exact(resp: _Resp, kappa: Fraction) -> tuple[float, float, list
         # every frequency.
         notes.append("1 + L(s) is identically zero: the loop is ill-posed at this gain")
         return math.inf, 0.0, notes
-    on_axis = _roots_x(b.coeffs, include_zero=True)
+    # |D + κN|² in x has no root x ≥ 0 when its constant term is non-zero and its
+    # coefficients keep one sign (Descartes' rule of signs): the usual case, settled
+    # without isolating roots.
+    on_axis: list[Fraction] = []
+    if b.coeffs[-1] == 0 or realroots.sign_variations(b.coeffs) > 0:
+        on_axis = _roots_x(b.coeffs, include_zero=True)
     if on_axis:
         notes.append(
             "a closed-loop pole lies on the imaginary axis: the sensitivity peak is infinite"
@@ -1335,11 +1438,32 @@ def _beyond(resp: _Resp, kap: float, ell: float) -> float:
     if ell <= 0.0 or resp.c_inf * kap >= ell:
         return math.inf if resp.rel_degree > 0 and ell > 0 else 0.0
     level = Fraction(ell / kap) ** 2
-    roots = _roots_x(
-        _combine((Fraction(1), resp.n2i), (-level, resp.d2i)).coeffs, include_zero=True
-    )
-    marks = [_tail_start(resp), *(math.sqrt(x) for x in roots)]
+    largest = _largest_root_x(_combine((Fraction(1), resp.n2i), (-level, resp.d2i)).coeffs)
+    marks = [_tail_start(resp), *([] if largest is None else [math.sqrt(largest)])]
     return max(marks) * 1.01
+
+
+def _largest_root_x(p: Sequence[int]) -> Fraction | None:
+    """The largest root x ≥ 0 of the integer polynomial p, the very rational
+    _roots_x(p, include_zero=True) ends with (the same isolation, the same refinement of
+    that root, the others left unrefined); None when there is no such root."""
+    q = list(p)
+    while q and q[0] == 0:
+        q.pop(0)
+    if len(q) < 2:
+        return None
+    zero = q[-1] == 0
+    while q[-1] == 0:
+        q.pop()
+    if len(q) >= 2:
+        sqf = realroots.square_free(q)
+        isolated = realroots.isolate_positive(sqf)
+        if isolated is None:  # the fast search gave up: the exact slow route, all roots
+            roots = _roots_x(p, include_zero=True)
+            return roots[-1] if roots else None
+        if isolated:
+            return realroots.refine(sqf, *isolated[-1])
+    return Fraction(0) if zero else None
 
 
 @_in_double_precision
@@ -1477,14 +1601,27 @@ def _sample(lo: float, hi: float) -> Fraction:
     return Fraction((lo + hi) / 2.0)
 
 
-def _decide(cands: list[float], top: float, holds: Callable[[Fraction], bool]) -> GainSet:
+def _decide(
+    cands: list[float],
+    top: float,
+    holds: Callable[[Fraction], bool],
+    within: GainSet | None = None,
+) -> GainSet:
     """The gains in (0, top) where `holds`, given every gain where its truth can change.
 
     Each open interval between candidates is decided at one rational sample; a candidate
     itself belongs to the set only when both neighbouring intervals do (a float end is open).
+    The caller keeps only the part of the set inside `within` (when given): an interval
+    whose closure lies apart from every piece of `within` is not decided (taken as false).
+    Its points and its ends are outside `within`, so the set intersected with `within` is
+    the same, and so is every end of that intersection (each lies inside or at a piece of
+    `within`, where nothing changed).
     """
     ends = [0.0, *_dedupe([c for c in cands if 0.0 < c < top]), top]
-    truth = [holds(_sample(lo, hi)) for lo, hi in itertools.pairwise(ends)]
+    spans = _spans(within)
+    truth = [
+        _meets(lo, hi, spans) and holds(_sample(lo, hi)) for lo, hi in itertools.pairwise(ends)
+    ]
     pieces = [
         Interval(_float_end(lo), _float_end(hi))
         for (lo, hi), ok in zip(itertools.pairwise(ends), truth, strict=True)
@@ -1495,6 +1632,47 @@ def _decide(cands: list[float], top: float, holds: Callable[[Fraction], bool]) -
             point = _float_end(ends[i])
             pieces.append(Interval(point, point, True, True))
     return GainSet.of(pieces)
+
+
+_Span = tuple[Fraction | None, Fraction | None]  # a closed hull; None: unbounded
+
+
+def _spans(within: GainSet | None) -> list[_Span] | None:
+    """The closures of within's pieces as exact (lo, hi) pairs; None when not given or an
+    end is not a rational or Float (then every interval is decided)."""
+    if within is None:
+        return None
+    out: list[_Span] = []
+    for iv in within.intervals:
+        lo = None if iv.lo == -INF else _exact_end(iv.lo)
+        hi = None if iv.hi is INF else _exact_end(iv.hi)
+        if (lo is None and iv.lo != -INF) or (hi is None and iv.hi is not INF):
+            return None
+        out.append((lo, hi))
+    return out
+
+
+def _exact_end(x: sympy.Expr) -> Fraction | None:
+    """A rational or finite Float end as the exact rational it is; None otherwise."""
+    if x.is_Rational:
+        return Fraction(int(x.p), int(x.q))
+    if x.is_Float and x.is_finite:
+        sign, man, exp, _bits = x._mpf_
+        return Fraction(-int(man) if sign else int(man)) * Fraction(2) ** int(exp)
+    return None
+
+
+def _meets(lo: float, hi: float, spans: list[_Span] | None) -> bool:
+    """Whether [lo, hi] (hi may be inf) meets some span (exact comparisons)."""
+    if spans is None:
+        return True
+    for a, b in spans:
+        if b is not None and b < lo:
+            continue
+        if a is not None and math.isfinite(hi) and a > hi:
+            continue
+        return True
+    return False
 
 
 def _stability_checks(resp: _Resp, hidden: int) -> str | None:
@@ -1560,7 +1738,7 @@ def _stable_gains_delayed(loop: LoopAlgebra) -> DelayedStability:
     def holds(k: Fraction) -> bool:
         return _unstable_roots(hits, open_rhp, float(k)) == 0
 
-    stable = _decide(cands, top, holds)
+    stable = _decide(cands, top, holds, allowed)
     return DelayedStability(stable.intersect(allowed), None, tuple(notes))
 
 
@@ -1616,7 +1794,7 @@ def _crossing_gains(resp: _Resp) -> list[float]:
     return [g for g in out if 0.0 < g < math.inf]
 
 
-def _pm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
+def _pm_set(resp: _Resp, minimum: float, top: float, within: GainSet) -> GainSet:
     floor = 1.0 / top if math.isfinite(top) else 0.0
     m = math.radians(minimum)
     cands = _crossing_gains(resp)
@@ -1628,10 +1806,10 @@ def _pm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
             return False
         return all(abs(pm) >= minimum for pm in _phase_margins(resp, gcs))
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
-def _gm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
+def _gm_set(resp: _Resp, minimum: float, top: float, within: GainSet) -> GainSet:
     # Beyond 6000 dB the spread leaves double precision; every finite gain margin falls short
     # there, which `holds` decides exactly, so the candidates only need to stay finite.
     spread = 10.0 ** min(abs(minimum) / 20.0, 300.0)
@@ -1644,10 +1822,10 @@ def _gm_set(resp: _Resp, minimum: float, top: float) -> GainSet:
     def holds(k: Fraction) -> bool:
         return all(abs(20.0 * math.log10(float(k) * r)) >= minimum for _w, r in pcs)
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
-def _dm_set(resp: _Resp, minimum: Fraction, top: float) -> GainSet:
+def _dm_set(resp: _Resp, minimum: Fraction, top: float, within: GainSet) -> GainSet:
     if minimum <= 0:
         return GainSet.positive()
     shifted = _with_delay(resp, resp.delay + minimum)
@@ -1675,7 +1853,7 @@ def _dm_set(resp: _Resp, minimum: Fraction, top: float) -> GainSet:
         gcs = _gain_crossovers(resp, k)
         return gcs is not None and _delay_margin(resp, k, gcs) >= float(minimum)
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
 def _ms_candidates_exact(resp: _Resp, peak: Fraction) -> list[float]:
@@ -1707,21 +1885,138 @@ def _ms_candidates_exact(resp: _Resp, peak: Fraction) -> list[float]:
         rows.pop(0)
     polys = [rows[-1], rows[0]]  # F at x = 0; F's leading coefficient in x
     if len(rows) > 1:
-        from sympy.polys.domains import ZZ
-        from sympy.polys.euclidtools import dmp_resultant
-
-        # The discriminant in x (up to a constant factor), as sympy's resultant over the
-        # integers computes it for Poly.resultant.
-        degree = len(rows) - 1
-        fz = [_strip(row) for row in rows]
-        fx = [_strip([(degree - i) * c for c in row]) for i, row in enumerate(rows[:-1])]
-        polys.append([int(c) for c in dmp_resultant(fz, fx, 1, ZZ)])
+        # The discriminant in x (up to a constant factor): the resultant of F and dF/dx.
+        polys.append(_resultant_in_x(rows))
     out: list[float] = []
     for poly in polys:
         coeffs = _primitive(poly).coeffs
         if len(coeffs) > 1:
             out.extend(_positive_roots(coeffs))
     return out
+
+
+def _resultant_in_x(rows: Sequence[Sequence[int]]) -> list[int]:
+    """Res_x(F, dF/dx) for F = Σ rows[i](K)·x^(n-i) (each row a polynomial in K, highest power
+    first, rows[0] not zero), as a polynomial in K: exactly the polynomial sympy's resultant
+    over the integers returns (the Sylvester determinant).
+
+    Evaluated at D + 1 consecutive integers K, D a bound on its degree, and interpolated
+    exactly: a univariate resultant of integers at each point costs far less than the
+    subresultant sequence over polynomials in K. Specialising K commutes with the resultant
+    while F's leading coefficient stays non-zero; where it vanishes at a point, sympy's
+    bivariate resultant is used instead.
+    """
+    n = len(rows) - 1
+    # K-degree of the coefficient of x^(n-i); the Sylvester matrix's column j holds the
+    # coefficients i = j - r of its shifted rows, so its determinant's degree is at most the
+    # sum over columns of their largest degree (and over rows likewise).
+    deg = [len(_strip(row)) - 1 for row in rows]
+    by_columns = sum(max(deg[max(0, j - n + 1) : min(j, n) + 1]) for j in range(2 * n - 1))
+    by_rows = (n - 1) * max(deg) + n * max(deg[:-1])
+    bound = max(min(by_columns, by_rows), 0)
+    nodes = range(-(bound // 2), bound - bound // 2 + 1)
+    values: list[int] = []
+    for k in nodes:
+        f = [_horner_int(row, k) for row in rows]
+        if f[0] == 0:
+            return _resultant_in_x_by_sympy(rows)
+        values.append(_res_with_derivative(f))
+    return _interpolate_consecutive(nodes[0], values)
+
+
+def _horner_int(p: Sequence[int], k: int) -> int:
+    acc = 0
+    for c in p:
+        acc = acc * k + c
+    return acc
+
+
+def _resultant_in_x_by_sympy(rows: Sequence[Sequence[int]]) -> list[int]:
+    from sympy.polys.domains import ZZ
+    from sympy.polys.euclidtools import dmp_resultant
+
+    degree = len(rows) - 1
+    fz = [_strip(row) for row in rows]
+    fx = [_strip([(degree - i) * c for c in row]) for i, row in enumerate(rows[:-1])]
+    return [int(c) for c in dmp_resultant(fz, fx, 1, ZZ)]
+
+
+def _res_with_derivative(f: Sequence[int]) -> int:
+    """Res(f, f') for an integer polynomial of degree ≥ 1 (highest power first, f[0] ≠ 0)."""
+    n = len(f) - 1
+    return _int_resultant(list(f), [(n - i) * c for i, c in enumerate(f[:-1])])
+
+
+def _int_resultant(a: list[int], b: list[int]) -> int:
+    """The resultant (Sylvester determinant) of integer polynomials with deg a > deg b ≥ 0,
+    leading coefficients non-zero, by the subresultant algorithm (H. Cohen, "A Course in
+    Computational Algebraic Number Theory", algorithm 3.3.7, from memory): every division
+    in it is exact, so it stays in integers."""
+    da, db = len(a) - 1, len(b) - 1
+    ca, cb = _content(a), _content(b)
+    a = [c // ca for c in a]
+    b = [c // cb for c in b]
+    scale: int = ca**db * cb**da
+    if db == 0:
+        return scale * int(b[0] ** da)
+    sign, g, h = 1, 1, 1
+    while True:
+        delta = da - db
+        if da % 2 and db % 2:
+            sign = -sign
+        r = _pseudo_remainder(a, b)
+        if not r:
+            return 0
+        div = g * h**delta
+        a, da = b, db
+        b = [c // div for c in r]
+        db = len(b) - 1
+        g = a[0]
+        h = g**delta // h ** (delta - 1) if delta else h
+        if db == 0:
+            return sign * scale * int(b[0] ** da // h ** (da - 1))
+
+
+def _content(p: Sequence[int]) -> int:
+    g = 0
+    for c in p:
+        g = math.gcd(g, c)
+    return g
+
+
+def _pseudo_remainder(a: Sequence[int], b: Sequence[int]) -> list[int]:
+    """r with lc(b)^(deg a - deg b + 1)·a = q·b + r, leading zeros dropped."""
+    r = list(a)
+    lead, m = b[0], len(b)
+    for _ in range(len(a) - m + 1):
+        top = r[0]
+        r = [lead * c for c in r[1:]]
+        if top:
+            for i in range(1, m):
+                r[i - 1] -= top * b[i]
+    return _strip(r)
+
+
+def _interpolate_consecutive(start: int, values: Sequence[int]) -> list[int]:
+    """The integer polynomial (highest power first, leading zeros dropped) of degree <
+    len(values) taking values[i] at start + i. Over consecutive integers a divided
+    difference of order j is Δ^j/j!, an integer for a polynomial with integer coefficients,
+    so Newton's table divides exactly."""
+    c = list(values)
+    size = len(c)
+    for j in range(1, size):
+        for i in range(size - 1, j - 1, -1):
+            c[i] = (c[i] - c[i - 1]) // j
+    out = [c[-1]]
+    for i in range(size - 2, -1, -1):
+        node = start + i
+        # out·(K - node) + c[i]
+        shifted = [*out, 0]
+        for t, v in enumerate(out):
+            shifted[t + 1] -= node * v
+        shifted[-1] += c[i]
+        out = shifted
+    return _strip(out)
 
 
 def _strip(coeffs: Sequence[int]) -> list[int]:
@@ -1799,7 +2094,7 @@ def _ms_candidates_delayed(resp: _Resp, peak: Fraction, top: float) -> list[floa
     return [g for g in out if math.isfinite(g) and g > 0.0]
 
 
-def _ms_set(resp: _Resp, maximum: Fraction, top: float) -> GainSet:
+def _ms_set(resp: _Resp, maximum: Fraction, top: float, within: GainSet) -> GainSet:
     if maximum <= 0:
         return GainSet.empty()
     if resp.delay == 0:
@@ -1814,7 +2109,7 @@ def _ms_set(resp: _Resp, maximum: Fraction, top: float) -> GainSet:
             peak, _w, _n = _sensitivity_delayed(resp, k)
         return peak <= float(maximum)
 
-    return _decide(cands, top, holds)
+    return _decide(cands, top, holds, within)
 
 
 def _as_fraction(x: Fraction | float | int) -> Fraction:
@@ -1853,12 +2148,13 @@ def margin_gains(
         top = min(upper, unstable_above)
     if math.isfinite(top):
         result = result.intersect(GainSet((Interval(sympy.Integer(0), _float_end(top)),)))
+    # Each criterion is decided only where the gains left so far lie (see _decide).
     if min_gain_margin_db is not None:
-        result = result.intersect(_gm_set(resp, float(min_gain_margin_db), top))
+        result = result.intersect(_gm_set(resp, float(min_gain_margin_db), top, result))
     if min_phase_margin_deg is not None:
-        result = result.intersect(_pm_set(resp, float(min_phase_margin_deg), top))
+        result = result.intersect(_pm_set(resp, float(min_phase_margin_deg), top, result))
     if min_delay_margin_s is not None:
-        result = result.intersect(_dm_set(resp, _as_fraction(min_delay_margin_s), top))
+        result = result.intersect(_dm_set(resp, _as_fraction(min_delay_margin_s), top, result))
     if max_sensitivity_peak is not None:
-        result = result.intersect(_ms_set(resp, _as_fraction(max_sensitivity_peak), top))
+        result = result.intersect(_ms_set(resp, _as_fraction(max_sensitivity_peak), top, result))
     return result
