@@ -130,19 +130,21 @@ class Cache:
             body = json.dumps(entry, allow_nan=True, default=_to_json)
             text = f"{_seal(body)}\n{body}"
             path = self._path(key)
-            path.parent.mkdir(parents=True, exist_ok=True)
-            if path.is_dir() and not path.is_symlink():
-                # Something else's folder where an entry belongs: entries are rewritten,
-                # and this name (a hash inside our own folder) is ours.
-                shutil.rmtree(path)
+            tmp = _create_beside(path)
             self._ignore_in_git()
-            fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".entry.", suffix=".tmp")
             try:
-                with os.fdopen(fd, "w", encoding="utf-8") as handle:
+                with tmp.open("w", encoding="utf-8") as handle:
                     handle.write(text)
-                Path(tmp).replace(path)
-            finally:
-                Path(tmp).unlink(missing_ok=True)
+                try:
+                    tmp.replace(path)
+                except IsADirectoryError:
+                    # Something else's folder where an entry belongs: entries are
+                    # rewritten, and this name (a hash inside our own folder) is ours.
+                    shutil.rmtree(path)
+                    tmp.replace(path)
+            except BaseException:
+                tmp.unlink(missing_ok=True)
+                raise
         except (OSError, TypeError, ValueError):
             # A read-only checkout still gets its answers, only slower; a value JSON cannot
             # carry is not kept either.
@@ -169,6 +171,33 @@ class Cache:
         marker = self.folder / ".gitignore"
         if not marker.exists():
             marker.write_text("# written by speclint: the analysis cache is not for git\n*\n")
+
+
+# Folders made for entries by this process (a worker writes hundreds of entries; asking
+# for each folder every time was a fifth of writing an entry).
+_MADE: set[Path] = set()
+
+
+def _create_beside(path: Path) -> Path:
+    """A new empty file next to `path`, named for this process and created exclusively
+    (a name left by a crashed run with the same process number is not reused)."""
+    folder = path.parent
+    if folder not in _MADE:
+        folder.mkdir(parents=True, exist_ok=True)
+        _MADE.add(folder)
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        os.close(os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+    except FileExistsError:
+        handle, name = tempfile.mkstemp(dir=folder, prefix=".entry.", suffix=".tmp")
+        os.close(handle)
+        tmp = Path(name)
+    except FileNotFoundError:  # the folder was deleted since: make it again
+        _MADE.discard(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        _MADE.add(folder)
+        os.close(os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+    return tmp
 
 
 def _seal(body: str) -> str:

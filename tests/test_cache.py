@@ -68,6 +68,18 @@ def test_warm_run_is_byte_identical_and_analyses_nothing(demo, monkeypatch):
     assert (code_warm, warm) == (code, cold)
 
 
+def test_a_cache_deleted_between_runs_is_written_again(demo):
+    # This process remembers the folders it made for entries; they may be gone by the
+    # next run (deleted by hand, as the README suggests to clear the cache).
+    _check()
+    before = [p.relative_to(demo) for p in _entries(demo)]
+    shutil.rmtree(demo / CACHE)
+    _check()
+    assert [p.relative_to(demo) for p in _entries(demo)] == before
+    assert (demo / CACHE / ".gitignore").is_file()
+    assert not list((demo / CACHE).rglob("*.tmp"))
+
+
 def test_the_cache_folder_ignores_itself_in_git(demo):
     _check()
     assert (demo / CACHE / ".gitignore").read_text().splitlines()[-1] == "*"
