@@ -130,11 +130,11 @@ class Cache:
             body = json.dumps(entry, allow_nan=True, default=_to_json)
             text = f"{_seal(body)}\n{body}"
             path = self._path(key)
-            tmp = _create_beside(path)
-            self._ignore_in_git()
+            fd, tmp = _create_beside(path)
             try:
-                with tmp.open("w", encoding="utf-8") as handle:
+                with os.fdopen(fd, "w", encoding="utf-8") as handle:
                     handle.write(text)
+                self._ignore_in_git()
                 try:
                     tmp.replace(path)
                 except IsADirectoryError:
@@ -178,26 +178,25 @@ class Cache:
 _MADE: set[Path] = set()
 
 
-def _create_beside(path: Path) -> Path:
-    """A new empty file next to `path`, named for this process and created exclusively
-    (a name left by a crashed run with the same process number is not reused)."""
+def _create_beside(path: Path) -> tuple[int, Path]:
+    """A new empty file next to `path`, open for writing: named for this process and
+    created exclusively (a name left by a crashed run with the same number is not reused)."""
     folder = path.parent
     if folder not in _MADE:
         folder.mkdir(parents=True, exist_ok=True)
         _MADE.add(folder)
     tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL
     try:
-        os.close(os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+        return os.open(tmp, flags, 0o600), tmp
     except FileExistsError:
-        handle, name = tempfile.mkstemp(dir=folder, prefix=".entry.", suffix=".tmp")
-        os.close(handle)
-        tmp = Path(name)
+        fd, name = tempfile.mkstemp(dir=folder, prefix=".entry.", suffix=".tmp")
+        return fd, Path(name)
     except FileNotFoundError:  # the folder was deleted since: make it again
         _MADE.discard(folder)
         folder.mkdir(parents=True, exist_ok=True)
         _MADE.add(folder)
-        os.close(os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
-    return tmp
+        return os.open(tmp, flags, 0o600), tmp
 
 
 def _seal(body: str) -> str:
