@@ -256,18 +256,24 @@ def _run(
             pool = ProcessPoolExecutor(jobs, mp_context=worker_context(), initializer=gc.freeze)
             with pool:
                 futures = {
-                    pool.submit(analyse_and_keep, task, keep[i]): i for i, task in enumerate(tasks)
+                    pool.submit(analyse_chunk, [(tasks[i], keep[i]) for i in chunk]): chunk
+                    for chunk in _chunks(tasks, jobs)
                 }
                 if meanwhile is not None:
                     meanwhile()
                 for future in as_completed(futures):
                     if future.cancelled():
                         continue
-                    i = futures[future]
-                    if record(i, future.result()):
-                        path = tasks[i][0].location.path
-                        for other, j in futures.items():
-                            if tasks[j][0].location.path == path:
+                    chunk = futures[future]
+                    used_up = [
+                        record(i, analysed)
+                        for i, analysed in zip(chunk, future.result(), strict=True)
+                        if analysed is not None
+                    ]
+                    if any(used_up):
+                        path = tasks[chunk[0]][0].location.path
+                        for other, others in futures.items():
+                            if tasks[others[0]][0].location.path == path:
                                 other.cancel()  # only those not yet started; the rest finish
         except (OSError, BrokenProcessPool):
             # No workers to be had (processes refused), or one died (killed, out of
@@ -279,6 +285,47 @@ def _run(
         if done[i] is None and expired.get(task[0].location.path, 0) < MAX_EXPIRED_PER_FILE:
             record(i, analyse_and_keep(task, keep[i]))
     return [d if d is not None else _skipped(*tasks[i]) for i, d in enumerate(done)]
+
+
+# Loops sent to a worker at a time: each message to and from a worker costs the process
+# collecting results about 0.4 ms, and a few loops keep the last ones from leaving one
+# worker idle for long.
+CHUNK = 4
+
+
+def _chunks(tasks: list[tuple[Loop, list[Requirement]]], jobs: int) -> list[list[int]]:
+    """Consecutive task numbers of one file each, CHUNK at most (one each when there are
+    too few tasks to keep every worker busy with several chunks)."""
+    size = max(1, min(CHUNK, len(tasks) // (jobs * 8)))
+    chunks: list[list[int]] = []
+    for i, (loop, _) in enumerate(tasks):
+        last = chunks[-1] if chunks else None
+        if (
+            last is not None
+            and len(last) < size
+            and tasks[last[0]][0].location.path == loop.location.path
+        ):
+            last.append(i)
+        else:
+            chunks.append([i])
+    return chunks
+
+
+def analyse_chunk(
+    items: list[tuple[tuple[Loop, list[Requirement]], Keep]],
+) -> list[Analysed | None]:
+    """analyse_and_keep on loops of one file; once MAX_EXPIRED_PER_FILE of them ran out of
+    their budget, the rest are left (None), as the run leaves the file's other loops."""
+    out: list[Analysed | None] = []
+    expired = 0
+    for task, keep in items:
+        if expired >= MAX_EXPIRED_PER_FILE:
+            out.append(None)
+            continue
+        analysed = analyse_and_keep(task, keep)
+        expired += any(f.rule == "SL407" for f in analysed[2])
+        out.append(analysed)
+    return out
 
 
 def _skipped(loop: Loop, requirements: list[Requirement]) -> Analysed:

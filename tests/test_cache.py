@@ -312,6 +312,42 @@ def test_workers_are_started_early_only_for_many_loops_read_afresh(monkeypatch):
     assert started == [True]
 
 
+def test_loops_go_to_workers_a_few_at_a_time_and_never_two_files_at_once():
+    from speclint.findings import Location
+    from speclint.model import Loop
+
+    def loop(path):
+        return Loop(name="x", location=Location(path, 1, 1), plant=None), []  # type: ignore[arg-type]
+
+    many = [loop("a.yaml")] * 70 + [loop("b.yaml")] * 3 + [loop("a.yaml")] * 10
+    chunks = speclint.pipeline._chunks(many, 2)
+    assert [i for chunk in chunks for i in chunk] == list(range(83))  # each once, in order
+    assert {len(c) for c in chunks} <= set(range(1, speclint.pipeline.CHUNK + 1))
+    for chunk in chunks:
+        assert len({many[i][0].location.path for i in chunk}) == 1
+        assert chunk == list(range(chunk[0], chunk[-1] + 1))
+    assert len(chunks) == 18 + 1 + 3  # a: 70 → 18, b: 3 → 1, a again: 10 → 3
+    # Too few loops to give each worker several chunks: one loop each.
+    assert speclint.pipeline._chunks(many[:20], 2) == [[i] for i in range(20)]
+
+
+def test_a_chunk_leaves_its_loops_once_enough_ran_out_of_time(monkeypatch):
+    from speclint.findings import Location
+    from speclint.rules import finding
+
+    calls: list[int] = []
+
+    def out_of_time(task, keep):
+        calls.append(task)
+        return None, [], [finding("SL407", "took longer", Location("a.yaml", 1, 1))]
+
+    monkeypatch.setattr(speclint.pipeline, "analyse_and_keep", out_of_time)
+    done = speclint.pipeline.analyse_chunk([(i, None) for i in range(6)])
+    limit = speclint.pipeline.MAX_EXPIRED_PER_FILE
+    assert calls == list(range(limit))
+    assert [d is None for d in done] == [False] * limit + [True] * (6 - limit)
+
+
 def test_the_default_uses_workers_only_for_many_loops():
     assert speclint.pipeline.default_jobs(1) == 1
     assert speclint.pipeline.default_jobs(23) == 1
