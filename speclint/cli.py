@@ -25,6 +25,7 @@ from speclint.rules import RULES
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
 EXIT_INTERNAL = 2  # shares the code of a usage error: either way the run proved nothing
+EXIT_INTERRUPTED = 130  # Ctrl-C, as shells report a command ended by SIGINT (128 + 2)
 
 
 class UsageError(Exception):
@@ -166,6 +167,9 @@ def main(
         return EXIT_USAGE
     except _Done as done:
         return done.status
+    except KeyboardInterrupt:
+        print("speclint: interrupted", file=stderr)
+        return EXIT_INTERRUPTED
     except (UsageError, ConfigError) as exc:
         print(f"speclint: {exc}", file=stderr)
         return EXIT_USAGE

@@ -250,11 +250,13 @@ def _run(
         from concurrent.futures.process import BrokenProcessPool
 
         try:
+            context = worker_context()
+            _start_fork_server(context)
             # gc.freeze as each worker starts: the cycle collector then leaves the objects
             # inherited from the fork server alone, instead of writing to them and so
             # giving each worker its own copy of their pages (copy-on-write).
-            pool = ProcessPoolExecutor(jobs, mp_context=worker_context(), initializer=gc.freeze)
-            with pool:
+            pool = ProcessPoolExecutor(jobs, mp_context=context, initializer=gc.freeze)
+            try:
                 futures = {
                     pool.submit(analyse_chunk, [(tasks[i], keep[i]) for i in chunk]): chunk
                     for chunk in _chunks(tasks, jobs)
@@ -275,6 +277,20 @@ def _run(
                         for other, others in futures.items():
                             if tasks[others[0]][0].location.path == path:
                                 other.cancel()  # only those not yet started; the rest finish
+            except BaseException as exc:
+                # The executor keeps its worker processes in `_processes` (nothing public
+                # reaches them), and forgets them on shutdown.
+                workers = list((getattr(pool, "_processes", None) or {}).values())
+                # Interrupted (Ctrl-C) or broken: drop the loops not started instead of
+                # waiting for all of them.
+                pool.shutdown(wait=False, cancel_futures=True)
+                if isinstance(exc, KeyboardInterrupt):
+                    # The workers ignore Ctrl-C (see _start_fork_server): end them now
+                    # rather than after the loops they hold.
+                    for process in workers:
+                        process.terminate()
+                raise
+            pool.shutdown()
         except (OSError, BrokenProcessPool):
             # No workers to be had (processes refused), or one died (killed, out of
             # memory): the loops without an answer yet are analysed below, in this process.
@@ -410,10 +426,24 @@ class FreshFiles:
             # Should it fail, the pool meets the same failure later and the loops are
             # analysed in this process (see _run): nothing to report here.
             with suppress(OSError):
-                if worker_context().get_start_method() == "forkserver":
-                    from multiprocessing import forkserver
+                _start_fork_server(worker_context())
 
-                    forkserver.ensure_running()
+
+def _start_fork_server(context: BaseContext) -> None:
+    """Start the fork server (once) with Ctrl-C ignored: the server and the workers forked
+    from it inherit that, so an interrupted run ends in this process alone, with one line
+    instead of a traceback from every process."""
+    if context.get_start_method() != "forkserver":
+        return
+    from multiprocessing import forkserver
+
+    in_main = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN) if in_main else None
+    try:
+        forkserver.ensure_running()
+    finally:
+        if in_main:
+            signal.signal(signal.SIGINT, previous)
 
 
 def usable_cores() -> int:

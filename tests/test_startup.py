@@ -14,6 +14,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 from conftest import REPO
 
 HEAVY = ("sympy", "numpy", "scipy")
@@ -158,3 +160,29 @@ def test_a_parallel_run_leaves_the_libraries_to_its_workers(tmp_path):
     parallel = json.loads((tmp_path / "parallel.json").read_text())
     assert parallel == json.loads((tmp_path / "serial.json").read_text())
     assert [loop["type"] for loop in parallel["loops"]] == [1] * 30  # one integrator each
+
+
+def test_ctrl_c_ends_a_parallel_run_with_one_line(tmp_path):
+    # Ctrl-C reaches every process of the terminal's process group. The fork server and its
+    # workers ignore it; the main process ends them and says so in one line, exit code 130
+    # as shells report SIGINT (common practice: 128 + the signal's number).
+    import signal
+    import time
+
+    from test_cache import _loops_file
+
+    (tmp_path / "axes.yaml").write_text(_loops_file(400))
+    run = subprocess.Popen(
+        [sys.executable, "-m", "speclint", "check", "axes.yaml", "--no-cache", "--jobs", "2"],
+        cwd=tmp_path,
+        env=_env(),
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
+    time.sleep(2.5)  # into the analysis: about 6 s of work for two workers here
+    run.send_signal(signal.SIGINT)
+    _, err = run.communicate(timeout=120)
+    if run.returncode in (0, 1):
+        pytest.skip("the run ended before the interrupt arrived (a much faster machine)")
+    assert (run.returncode, err) == (130, "speclint: interrupted\n")
