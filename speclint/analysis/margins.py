@@ -664,15 +664,8 @@ class _Resp:
     rel_degree: int  # deg D - deg N
     c_inf: float  # |L(∞)|: 0 strictly proper, inf improper
 
-    # The same four as sympy polynomials in x, for the exact work done once per loop.
-    @property
-    def n2(self) -> sympy.Poly:
-        return _poly_x(self.n2i)
-
-    @property
-    def d2(self) -> sympy.Poly:
-        return _poly_x(self.d2i)
-
+    # p and q as sympy polynomials in x, for the exact work done once per loop (built on
+    # each use: read once where they are needed).
     @property
     def p(self) -> sympy.Poly:
         return _poly_x(self.pi)
@@ -1229,7 +1222,8 @@ def _phase_crossovers_to(resp: _Resp, floor: float) -> tuple[tuple[float, float]
             # Nothing to strip: q's roots with p's sign straight from the integers.
             found = realroots.positive_roots_with_sign(q, p)
         if found is None:
-            found = _roots_with_sign(_strip_common(resp.q, resp.p), resp.p)
+            p_x = resp.p
+            found = _roots_with_sign(_strip_common(resp.q, p_x), p_x)
         for x, sign in found:
             if sign < 0:
                 w = math.sqrt(x)
