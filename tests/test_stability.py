@@ -19,15 +19,21 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from speclint.analysis.algebra import K, LoopAlgebra, Ratio, S, poly
-from speclint.analysis.gainset import INF, ZERO, GainSet, Interval, to_float
+from speclint.analysis.gainset import (
+    INF,
+    ZERO,
+    GainSet,
+    Interval,
+    _proven_irreducible,
+    irreducible_factors,
+    to_float,
+)
 from speclint.analysis.stability import (
     _S_RING,
     EPS,
     _first_column_parts,
-    _proven_irreducible,
     _shown_coprime,
     hidden_modes,
-    irreducible_parts,
     is_hurwitz,
     routh_table,
     stable_gains,
@@ -726,7 +732,7 @@ def cubics_and_quartics(draw: st.DrawFn) -> list[int]:
 
 @settings(max_examples=100, deadline=None)
 @given(cubics_and_quartics())
-def test_irreducible_parts_against_sympy_factoring(p: list[int]) -> None:
+def test_irreducible_factors_of_cubics_and_quartics_against_sympy_factoring(p: list[int]) -> None:
     # Reference: sympy's factorization over the integers (factor_list, Zassenhaus).
     _, factors = sympy.Poly(p, S).factor_list()
     irreducible = len(factors) == 1 and factors[0][1] == 1
@@ -735,7 +741,7 @@ def test_irreducible_parts_against_sympy_factoring(p: list[int]) -> None:
     expected = sorted(
         tuple(int(c) for c in (f if f.LC() > 0 else -f).all_coeffs()) for f, _ in factors
     )
-    assert sorted(irreducible_parts(p)) == expected
+    assert sorted(irreducible_factors(p)) == expected
 
 
 def test_irreducibility_shown_without_factoring() -> None:
@@ -745,9 +751,9 @@ def test_irreducibility_shown_without_factoring() -> None:
     # Algebra, §9.4; from memory): the test cannot show it, and sympy's factoring decides.
     assert _proven_irreducible([1, 0, 0, -2])
     assert not _proven_irreducible([1, 0, 0, 0, 1])
-    assert irreducible_parts([1, 0, 0, 0, 1]) == [(1, 0, 0, 0, 1)]
+    assert irreducible_factors([1, 0, 0, 0, 1]) == [(1, 0, 0, 0, 1)]
     assert not _proven_irreducible([1, -6, 11, -6])  # (x − 1)(x − 2)(x − 3)
-    assert irreducible_parts([2, -12, 22, -12]) == [(1, -3), (1, -2), (1, -1)]
+    assert sorted(irreducible_factors([2, -12, 22, -12])) == [(1, -3), (1, -2), (1, -1)]
 
 
 _s_factor = st.lists(

@@ -289,7 +289,7 @@ def irreducible_factors(p: Sequence[int]) -> list[tuple[int, ...]]:
         # two rational roots (-b ± r)/(2a), each giving a linear factor q·x - p
         found = {_normal([q.denominator, -q.numerator]) for q in _quadratic_roots(a, b, r)}
         return sorted(found)
-    if _proved_irreducible(p):
+    if (len(p) in (4, 5) and _proven_irreducible(p)) or _proved_irreducible(p):
         return [_normal(p)]
     from sympy.polys.factortools import dup_factor_list
 
@@ -297,7 +297,62 @@ def irreducible_factors(p: Sequence[int]) -> list[tuple[int, ...]]:
     return [_normal([int(c) for c in f]) for f, _ in factors if len(f) > 1]
 
 
-# Small primes for the irreducibility test: arithmetic modulo them stays in machine-sized
+# Two tests prove a factor irreducible before sympy factors it: roots modulo small primes
+# for a cubic or quartic (about 20 us; almost every one the analysis meets), and the
+# degree patterns of distinct-degree factorisation for any degree (about ten times that).
+# Primes for the first; it gives up after _TRIES of them that do not divide the leading
+# coefficient.
+_LOW_PRIMES = tuple(int(q) for q in sympy.primerange(2, 240))
+_TRIES = 24
+
+
+def _proven_irreducible(p: Sequence[int]) -> bool:
+    """True when the integer cubic or quartic p is shown irreducible over Q; False when not
+    shown (it may still be).
+
+    A polynomial that factors over Q factors over Z with factors of the same degrees
+    (Gauss's lemma). Modulo a prime q that does not divide the leading coefficient the
+    factors keep their degrees, so a linear factor gives a root mod q: no root mod some such
+    q rules out a linear factor (for a cubic, the only way to factor). A quartic may also
+    be a product g·h of two quadratics: then a root r mod q makes g or h equal to
+    (x − r)(x − s) with s a root as well, so a single root r mod q with p'(r) ≢ 0 (not
+    double) rules that out (Knuth, The Art of Computer Programming, vol. 2, §4.6.2, on
+    factoring over the integers through factoring mod p; from memory)."""
+    n = len(p) - 1
+    no_linear = False
+    no_quadratics = n == 3
+    tries = _TRIES
+    for q in _LOW_PRIMES:
+        lead = p[0] % q
+        if not lead:
+            continue
+        c = [x % q for x in p]
+        roots = []
+        for x in range(q):
+            acc = 0
+            for coefficient in c:
+                acc = (acc * x + coefficient) % q
+            if not acc:
+                roots.append(x)
+                if len(roots) > 1:
+                    break
+        if not roots:
+            no_linear = True
+        elif len(roots) == 1 and not no_quadratics:
+            r = roots[0]
+            slope = 0
+            for i, coefficient in enumerate(c[:-1]):
+                slope = (slope * r + (n - i) * coefficient) % q
+            no_quadratics = slope != 0
+        if no_linear and no_quadratics:
+            return True
+        tries -= 1
+        if not tries:
+            return False
+    return False
+
+
+# Small primes for the general test: arithmetic modulo them stays in machine-sized
 # integers, and a dozen of them settle almost every polynomial the analysis meets.
 _TEST_PRIMES = (101, 103, 107, 109, 113, 127, 131, 137, 139, 149, 151, 157)
 

@@ -740,7 +740,7 @@ def _candidates(parts: list[tuple[list[int], list[int]]]) -> list[tuple[Number, 
         seen.add(key)
         if realroots.sign_variations(ints) == 0:
             continue  # no positive root (Descartes' rule of signs): nothing to factor
-        factors.update(dict.fromkeys(irreducible_parts(ints)))
+        factors.update(dict.fromkeys(irreducible_factors(ints)))
     found: list[tuple[Number, tuple[int, ...]]] = []
     for factor in factors:
         found.extend((root, factor) for root in factor_roots(factor) if number_less(_ZERO, root))
@@ -748,70 +748,6 @@ def _candidates(parts: list[tuple[list[int], list[int]]]) -> list[tuple[Number, 
 
 
 _ZERO = Fraction(0)
-
-
-def irreducible_parts(p: list[int]) -> list[tuple[int, ...]]:
-    """``gainset.irreducible_factors(p)``, without sympy's factoring for a cubic or quartic
-    that its roots modulo small primes prove irreducible (most first-column polynomials)."""
-    if len(p) in (4, 5) and _proven_irreducible(p):
-        g = 0
-        for c in p:
-            g = math.gcd(g, c)
-        g = -g if p[0] < 0 else g
-        return [tuple(c // g for c in p)]  # primitive, positive leading coefficient
-    return irreducible_factors(p)
-
-
-# Primes for the test below; it gives up (and sympy factors) after _TRIES of them that do
-# not divide the leading coefficient.
-_PRIMES = tuple(int(q) for q in sympy.primerange(2, 240))
-_TRIES = 24
-
-
-def _proven_irreducible(p: list[int]) -> bool:
-    """True when the integer cubic or quartic p is shown irreducible over Q; False when not
-    shown (it may still be).
-
-    A polynomial that factors over Q factors over Z with factors of the same degrees
-    (Gauss's lemma). Modulo a prime q that does not divide the leading coefficient the
-    factors keep their degrees, so a linear factor gives a root mod q: no root mod some such
-    q rules out a linear factor (for a cubic, the only way to factor). A quartic may also
-    be a product g·h of two quadratics: then a root r mod q makes g or h equal to
-    (x − r)(x − s) with s a root as well, so a single root r mod q with p'(r) ≢ 0 (not
-    double) rules that out (Knuth, The Art of Computer Programming, vol. 2, §4.6.2, on
-    factoring over the integers through factoring mod p; from memory)."""
-    n = len(p) - 1
-    no_linear = False
-    no_quadratics = n == 3
-    tries = _TRIES
-    for q in _PRIMES:
-        lead = p[0] % q
-        if not lead:
-            continue
-        c = [x % q for x in p]
-        roots = []
-        for x in range(q):
-            acc = 0
-            for coefficient in c:
-                acc = (acc * x + coefficient) % q
-            if not acc:
-                roots.append(x)
-                if len(roots) > 1:
-                    break
-        if not roots:
-            no_linear = True
-        elif len(roots) == 1 and not no_quadratics:
-            r = roots[0]
-            slope = 0
-            for i, coefficient in enumerate(c[:-1]):
-                slope = (slope * r + (n - i) * coefficient) % q
-            no_quadratics = slope != 0
-        if no_linear and no_quadratics:
-            return True
-        tries -= 1
-        if not tries:
-            return False
-    return False
 
 
 def _compare(a: tuple[Number, tuple[int, ...]], b: tuple[Number, tuple[int, ...]]) -> int:

@@ -76,13 +76,13 @@ from speclint.analysis.gainset import (
     exact,
     factor_roots,
     format_number,
+    irreducible_factors,
     less,
     number_less,
     real_roots,
     to_exact,
     where_sign,
 )
-from speclint.analysis.stability import irreducible_parts
 
 REFERENCES = ("step", "ramp", "parabola")
 CONSTANTS = ("kp", "kv", "ka")
@@ -664,7 +664,7 @@ def _special_gains(f1: _Quasi, f2: _Quasi) -> list[tuple[sympy.Expr, _Gain, Numb
     if len(ints) < 2:
         return []
     points = []
-    for factor in irreducible_parts(ints):
+    for factor in irreducible_factors(ints):
         element = _RING.from_dict({(len(factor) - 1 - i,): c for i, c in enumerate(factor) if c})
         for root in factor_roots(factor):
             if number_less(_NO_GAIN, root):
